@@ -41,8 +41,8 @@ func (t *Tank) DrainableHeightM() float64 {
 
 // VerticalCylinder is a flat-bottomed upright cylinder.
 type VerticalCylinder struct {
-	DiameterM float64
-	HeightMM  float64 // internal height, m (named to avoid clashing with the method)
+	DiameterM       float64
+	InternalHeightM float64
 }
 
 func (c VerticalCylinder) area() float64 { return 0.25 * 3.141592653589793 * c.DiameterM * c.DiameterM }
@@ -52,11 +52,11 @@ func (c VerticalCylinder) AreaM2(float64) float64 { return c.area() }
 
 // VolumeM3 implements Shape.
 func (c VerticalCylinder) VolumeM3(levelM float64) float64 {
-	return c.area() * clamp(levelM, 0, c.HeightMM)
+	return c.area() * clamp(levelM, 0, c.InternalHeightM)
 }
 
 // HeightM implements Shape.
-func (c VerticalCylinder) HeightM() float64 { return c.HeightMM }
+func (c VerticalCylinder) HeightM() float64 { return c.InternalHeightM }
 
 func clamp(x, lo, hi float64) float64 {
 	if x < lo {
