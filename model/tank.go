@@ -1,5 +1,10 @@
 package model
 
+import (
+	"fmt"
+	"math"
+)
+
 // Shape is a vessel's geometry measured from its lowest internal point.
 // Implementations must be consistent: VolumeM3 is the integral of AreaM2, and
 // both are non-decreasing in level (volume) and non-negative (area). Levels
@@ -66,4 +71,35 @@ func clamp(x, lo, hi float64) float64 {
 		return hi
 	}
 	return x
+}
+
+// Validate checks that the tank can be fitted: a shape with a positive,
+// finite height, an outlet at or above the bottom and below the top, and a
+// non-negative outlet bore. A shape with its own Validate method is checked
+// too. Errors name the tank and the field.
+func (t *Tank) Validate() error {
+	if t.Shape == nil {
+		return fmt.Errorf("model: tank %q: no shape", t.ID)
+	}
+	if v, ok := t.Shape.(interface{ Validate() error }); ok {
+		if err := v.Validate(); err != nil {
+			return fmt.Errorf("model: tank %q: %w", t.ID, err)
+		}
+	}
+	h := t.Shape.HeightM()
+	if !(h > 0) || math.IsInf(h, 0) {
+		return fmt.Errorf("model: tank %q: shape height %g m is not positive and finite", t.ID, h)
+	}
+	if !(t.OutletElevM >= 0) || !(t.OutletElevM < h) {
+		return fmt.Errorf("model: tank %q: outlet elevation %g m is outside [0, %g) m", t.ID, t.OutletElevM, h)
+	}
+	if !(t.OutletDiamM >= 0) || math.IsInf(t.OutletDiamM, 0) {
+		return fmt.Errorf("model: tank %q: outlet diameter %g m is not a finite non-negative number", t.ID, t.OutletDiamM)
+	}
+	return nil
+}
+
+// Validate implements the optional shape check used by Tank.Validate.
+func (c VerticalCylinder) Validate() error {
+	return positive("vertical cylinder", "diameter", c.DiameterM, "internal height", c.InternalHeightM)
 }
