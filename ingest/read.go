@@ -1,0 +1,408 @@
+package ingest
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"path/filepath"
+	"sort"
+	"strings"
+	"time"
+
+	"drainsight/model"
+)
+
+// Format is the layout of a level file.
+type Format int
+
+const (
+	// FormatAuto picks the format from the file name: .csv is CSV; .lp, .line
+	// and .txt are line protocol (each optionally followed by .gz).
+	FormatAuto Format = iota
+	// FormatCSV is a CSV file with a header naming time, tank and value.
+	FormatCSV
+	// FormatLineProtocol is InfluxDB line protocol.
+	FormatLineProtocol
+)
+
+func (f Format) String() string {
+	switch f {
+	case FormatAuto:
+		return "auto"
+	case FormatCSV:
+		return "csv"
+	case FormatLineProtocol:
+		return "line_protocol"
+	}
+	return fmt.Sprintf("Format(%d)", int(f))
+}
+
+// ParseFormat reads "csv", "line_protocol" (or "lp") and "auto".
+func ParseFormat(s string) (Format, error) {
+	switch s {
+	case "", "auto":
+		return FormatAuto, nil
+	case "csv":
+		return FormatCSV, nil
+	case "line_protocol", "lp":
+		return FormatLineProtocol, nil
+	}
+	return 0, fmt.Errorf("ingest: unknown format %q (want csv or line_protocol)", s)
+}
+
+// formatOf resolves FormatAuto from a file name.
+func formatOf(path string, f Format) (Format, error) {
+	if f != FormatAuto {
+		return f, nil
+	}
+	switch filepath.Ext(strings.TrimSuffix(path, ".gz")) {
+	case ".csv":
+		return FormatCSV, nil
+	case ".lp", ".line", ".txt":
+		return FormatLineProtocol, nil
+	}
+	return 0, fmt.Errorf("ingest: %s: cannot tell the format from the name; set it", path)
+}
+
+// ReadOptions tune the readers. The zero value reads CSV with times by
+// magnitude, and line protocol of any measurement with the field "level",
+// the tag "tank" and nanosecond timestamps.
+type ReadOptions struct {
+	// Precision is the unit of numeric times. PrecisionAuto (default): CSV
+	// decides each value by the magnitude of its integer part (below 1e11
+	// seconds, below 1e14 milliseconds, below 1e17 microseconds, else
+	// nanoseconds; right for every time from 1973 to 5138), and line protocol
+	// uses nanoseconds. CSV times may also be RFC 3339 ("2024-03-01T12:00:00Z",
+	// any offset, fractions to the nanosecond); numeric CSV times may carry a
+	// decimal fraction.
+	Precision Precision
+	// Measurement is the line protocol measurement to read; "" reads all.
+	// Lines of other measurements are counted in Report.Foreign.
+	Measurement string
+	// Field is the line protocol field holding the reading; default "level".
+	Field string
+	// TankTag is the line protocol tag naming the tank; default "tank".
+	TankTag string
+	// InflowField is the line protocol field of an inflow meter; "" reads
+	// none. Its readings go to OnInflow, ordered per tank like the levels.
+	InflowField string
+	// OnInflow receives the inflow readings (raw, in the meter's unit).
+	OnInflow func(tank string, tNs int64, value float64)
+	// Tanks, when not nil, lists the tanks to read; samples of any other tank
+	// are counted as unknown_tank.
+	Tanks map[string]bool
+	// MaxLineBytes is the longest line accepted; longer lines are skipped and
+	// counted as malformed. 0 means DefaultMaxLineBytes (1 MiB).
+	MaxLineBytes int
+}
+
+// order remembers the last accepted time per tank (and per inflow meter) and
+// interns tank names, across the files of one read.
+type order struct {
+	lastNs   map[string]int64
+	lastFlow map[string]int64
+	names    map[string]string
+}
+
+func newOrder() *order {
+	return &order{lastNs: map[string]int64{}, lastFlow: map[string]int64{}, names: map[string]string{}}
+}
+
+func (o *order) intern(b []byte) string {
+	if s, ok := o.names[string(b)]; ok {
+		return s
+	}
+	s := string(b)
+	o.names[s] = s
+	return s
+}
+
+// check tells whether tNs is after the last accepted time in last[tank], and
+// records it when it is.
+func check(last map[string]int64, tank string, tNs int64) (ProblemKind, string) {
+	prev, seen := last[tank]
+	switch {
+	case !seen || tNs > prev:
+		last[tank] = tNs
+		return "", ""
+	case tNs == prev:
+		return DuplicateTime, fmt.Sprintf("tank %q: time %s repeated", tank, fmtNs(tNs))
+	default:
+		return OutOfOrder, fmt.Sprintf("tank %q: time %s before %s", tank, fmtNs(tNs), fmtNs(prev))
+	}
+}
+
+func fmtNs(t int64) string { return time.Unix(0, t).UTC().Format(time.RFC3339Nano) }
+
+// ReadFile streams one file (gzip-compressed when the name ends in .gz) and
+// calls sink for every accepted sample, in file order. Per tank, a sample
+// whose time is not after the previous accepted one is skipped and counted
+// (out_of_order or duplicate_time), so each tank's times reach sink strictly
+// increasing. Every other skipped line is counted too; see Report.
+//
+// ReadFile returns an error only when the file cannot be opened or read, its
+// CSV header is missing or bad, or ctx ends; data problems go to the Report.
+func ReadFile(ctx context.Context, path string, format Format, opt ReadOptions, sink func(tank string, tNs int64, value float64)) (Report, error) {
+	return readFile(ctx, path, format, opt, newOrder(), sink)
+}
+
+func readFile(ctx context.Context, path string, format Format, opt ReadOptions, ord *order, sink func(tank string, tNs int64, value float64)) (Report, error) {
+	rep := Report{Files: 1}
+	format, err := formatOf(path, format)
+	if err != nil {
+		return rep, err
+	}
+	src, err := openSource(path)
+	if err != nil {
+		return rep, err
+	}
+	defer src.Close()
+	lr := newLineReader(src, opt.MaxLineBytes)
+
+	if opt.Field == "" {
+		opt.Field = "level"
+	}
+	if opt.TankTag == "" {
+		opt.TankTag = "tank"
+	}
+	var cp csvParser
+	lp := lpParser{measurement: opt.Measurement, field: opt.Field, inflowField: opt.InflowField,
+		tankTag: opt.TankTag, prec: opt.Precision}
+	if lp.prec == PrecisionAuto {
+		lp.prec = PrecisionNs
+	}
+	problem := func(kind ProblemKind, text string) {
+		rep.add(Problem{File: path, Line: lr.n, Kind: kind, Text: text})
+	}
+	accept := func(tankB []byte, tNs int64, v float64) {
+		tank := ord.intern(tankB)
+		if opt.Tanks != nil && !opt.Tanks[tank] {
+			problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tank))
+			return
+		}
+		if kind, text := check(ord.lastNs, tank, tNs); kind != "" {
+			problem(kind, text)
+			return
+		}
+		rep.Samples++
+		sink(tank, tNs, v)
+	}
+
+	// lpAccept takes a parsed line protocol line: its inflow reading, if
+	// any, then its level sample.
+	lpAccept := func(r lpResult) {
+		if r.inflowKind != "" {
+			problem(r.inflowKind, r.inflowText)
+		}
+		tank := ord.intern(r.tank)
+		known := opt.Tanks == nil || opt.Tanks[tank]
+		if r.hasInflow && known && opt.OnInflow != nil {
+			if k, t := check(ord.lastFlow, tank, r.tNs); k != "" {
+				problem(k, "inflow: "+t)
+			} else {
+				rep.InflowSamples++
+				opt.OnInflow(tank, r.tNs, r.inflow)
+			}
+		}
+		switch {
+		case r.hasLevel:
+			accept(r.tank, r.tNs, r.level)
+		case !known:
+			problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tank))
+		case opt.OnInflow == nil:
+			rep.Foreign++
+		}
+	}
+
+	for {
+		if lr.n&4095 == 0 {
+			if err := ctx.Err(); err != nil {
+				return rep, fmt.Errorf("ingest: %s:%d: %w", path, lr.n, err)
+			}
+		}
+		line, noEOL, tooLong, err := lr.next()
+		if errors.Is(err, io.EOF) {
+			return rep, nil
+		}
+		rep.Lines++
+		if err != nil {
+			if src.fileErr != nil {
+				return rep, fmt.Errorf("ingest: %s:%d: %w", path, lr.n, src.fileErr)
+			}
+			// The compressed stream ended early or is corrupt: what came
+			// before stands, the rest of the file is lost.
+			problem(Truncated, fmt.Sprintf("compressed stream broken after %d bytes of this line: %v", len(line), err))
+			return rep, nil
+		}
+		if tooLong {
+			problem(Malformed, fmt.Sprintf("line longer than %d bytes", lr.max))
+			continue
+		}
+		var kind ProblemKind
+		var text string
+		switch format {
+		case FormatCSV:
+			tank, tNs, v, skip, k, t, fatal := cp.parse(line, opt.Precision)
+			switch {
+			case fatal != nil:
+				return rep, fmt.Errorf("ingest: %s:%d: %w", path, lr.n, fatal)
+			case skip:
+				rep.Ignored++
+				continue
+			case k == "":
+				accept(tank, tNs, v)
+				continue
+			}
+			kind, text = k, t
+		default:
+			r := lp.parse(line)
+			switch {
+			case r.skip:
+				rep.Ignored++
+				continue
+			case r.foreign:
+				rep.Foreign++
+				continue
+			}
+			if r.kind == "" {
+				lpAccept(r)
+				continue
+			}
+			kind, text = r.kind, r.text
+		}
+		if noEOL {
+			kind, text = Truncated, "last line has no newline and does not parse: "+text
+		}
+		problem(kind, text)
+	}
+}
+
+// Conversion turns one tank's raw readings into head (and inflow into m^3/s).
+type Conversion struct {
+	Sensor      Sensor
+	OutletElevM float64 // outlet elevation above the vessel bottom, m
+	// InflowToSI converts the inflow meter's unit to m^3/s; 0 means the tank
+	// has no inflow meter.
+	InflowToSI float64
+}
+
+// ReadSeries expands the glob patterns, reads every matching file once in
+// lexical order of the paths (name files so that this is time order) and
+// returns one Series of head per tank in conv. Each tank's times are strictly
+// increasing across all files: a sample not after the previous one of its
+// tank is skipped and counted, with its file and line. Samples of tanks not in
+// conv are counted as unknown_tank, unless opt.Tanks says otherwise.
+//
+// With opt.InflowField set, tanks whose Conversion has InflowToSI > 0 get
+// InflowM3s by sample-and-hold of the meter's readings; samples before the
+// meter's first reading get NaN. Tanks without readings get no Series.
+//
+// An error is returned for a pattern that matches no file, an invalid
+// Conversion, or any error of ReadFile; the Report holds what was read so far.
+func ReadSeries(ctx context.Context, patterns []string, format Format, opt ReadOptions, conv map[string]Conversion) (map[string]*model.Series, Report, error) {
+	var rep Report
+	for tank, c := range conv {
+		if err := c.Sensor.Validate(); err != nil {
+			return nil, rep, fmt.Errorf("ingest: tank %q: %w", tank, err)
+		}
+		if math.IsNaN(c.OutletElevM) || math.IsInf(c.OutletElevM, 0) || c.InflowToSI < 0 {
+			return nil, rep, fmt.Errorf("ingest: tank %q: outlet elevation must be finite and inflow factor non-negative", tank)
+		}
+	}
+	paths, err := expand(patterns)
+	if err != nil {
+		return nil, rep, err
+	}
+	if opt.Tanks == nil {
+		opt.Tanks = make(map[string]bool, len(conv))
+		for tank := range conv {
+			opt.Tanks[tank] = true
+		}
+	}
+	flows := map[string]*meterReadings{}
+	if opt.InflowField != "" {
+		opt.OnInflow = func(tank string, tNs int64, v float64) {
+			f := flows[tank]
+			if f == nil {
+				f = &meterReadings{}
+				flows[tank] = f
+			}
+			f.t = append(f.t, tNs)
+			f.v = append(f.v, v*conv[tank].InflowToSI)
+		}
+	}
+	out := map[string]*model.Series{}
+	ord := newOrder()
+	sink := func(tank string, tNs int64, v float64) {
+		s := out[tank]
+		if s == nil {
+			s = &model.Series{Tank: tank}
+			out[tank] = s
+		}
+		c := conv[tank]
+		s.Append(tNs, c.Sensor.HeadM(v, c.OutletElevM))
+	}
+	for _, p := range paths {
+		r, err := readFile(ctx, p, format, opt, ord, sink)
+		rep.Merge(r)
+		if err != nil {
+			return out, rep, err
+		}
+	}
+	if opt.InflowField != "" {
+		for tank, s := range out {
+			if conv[tank].InflowToSI > 0 {
+				s.InflowM3s = holdInflow(s.TimeNs, flows[tank])
+			}
+		}
+	}
+	return out, rep, nil
+}
+
+// meterReadings are one tank's inflow readings in m^3/s.
+type meterReadings struct {
+	t []int64
+	v []float64
+}
+
+// holdInflow samples the meter's readings at times by sample-and-hold.
+func holdInflow(times []int64, f *meterReadings) []float64 {
+	out := make([]float64, len(times))
+	j := -1
+	for i, t := range times {
+		for f != nil && j+1 < len(f.t) && f.t[j+1] <= t {
+			j++
+		}
+		if j < 0 {
+			out[i] = math.NaN()
+		} else {
+			out[i] = f.v[j]
+		}
+	}
+	return out
+}
+
+// expand resolves glob patterns to a sorted, duplicate-free list of files.
+func expand(patterns []string) ([]string, error) {
+	seen := map[string]bool{}
+	var paths []string
+	for _, pat := range patterns {
+		m, err := filepath.Glob(pat)
+		if err != nil {
+			return nil, fmt.Errorf("ingest: pattern %q: %w", pat, err)
+		}
+		if len(m) == 0 {
+			return nil, fmt.Errorf("ingest: pattern %q matches no file", pat)
+		}
+		for _, p := range m {
+			if !seen[p] {
+				seen[p] = true
+				paths = append(paths, p)
+			}
+		}
+	}
+	sort.Strings(paths)
+	return paths, nil
+}

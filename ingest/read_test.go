@@ -1,0 +1,325 @@
+package ingest
+
+import (
+	"bytes"
+	"compress/gzip"
+	"context"
+	"flag"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+)
+
+var update = flag.Bool("update", false, "rewrite the golden files under testdata/")
+
+type sample struct {
+	tank string
+	t    int64
+	v    float64
+}
+
+func collect(dst *[]sample) func(string, int64, float64) {
+	return func(tank string, t int64, v float64) { *dst = append(*dst, sample{tank, t, v}) }
+}
+
+// golden compares got with testdata/name, or rewrites it under -update.
+func golden(t *testing.T, name, got string) {
+	t.Helper()
+	path := filepath.Join("testdata", name)
+	if *update {
+		if err := os.WriteFile(path, []byte(got), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatalf("%v (run go test -update to create it)", err)
+	}
+	if got != string(want) {
+		t.Errorf("%s differs from the golden file:\n--- got\n%s--- want\n%s", name, got, want)
+	}
+}
+
+func balance(t *testing.T, r Report) {
+	t.Helper()
+	if got, want := r.Lines, r.Ignored+r.Foreign+r.Samples+r.Problems(); got != want {
+		t.Errorf("Lines = %d, want Ignored+Foreign+Samples+Problems = %d (%+v)", got, want, r)
+	}
+}
+
+func ns(s string) int64 {
+	tm, err := time.Parse(time.RFC3339Nano, s)
+	if err != nil {
+		panic(err)
+	}
+	return tm.UnixNano()
+}
+
+func TestReadCSVProblems(t *testing.T) {
+	var got []sample
+	opt := ReadOptions{Tanks: map[string]bool{"T1": true, "T,2": true}}
+	rep, err := ReadFile(context.Background(), "testdata/problems.csv", FormatAuto, opt, collect(&got))
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []sample{
+		{"T1", ns("2024-03-01T00:00:00Z"), 1.25},
+		{"T1", ns("2024-03-01T00:01:00Z"), 1.24},
+		{"T1", ns("2024-03-01T00:02:00Z"), 1.23}, // Unix seconds
+		{"T1", ns("2024-03-01T00:05:00Z"), 1.2},  // Unix nanoseconds
+		{"T,2", ns("2024-03-01T00:06:00Z"), 0.5}, // quoted tank name
+		{"T1", ns("2024-03-01T00:10:00Z"), 1.05}, // spaces around fields
+		{"T1", ns("2024-03-01T00:11:00Z"), 1.0},  // last line without newline, parses
+	}
+	if fmt.Sprint(got) != fmt.Sprint(want) {
+		t.Errorf("samples\n got %v\nwant %v", got, want)
+	}
+	wantCounts := map[ProblemKind]int64{
+		DuplicateTime: 1, OutOfOrder: 2, NaN: 1, EmptyValue: 1, UnknownTank: 1, Malformed: 6,
+	}
+	for _, k := range Kinds {
+		if rep.Counts[k] != wantCounts[k] {
+			t.Errorf("Counts[%s] = %d, want %d", k, rep.Counts[k], wantCounts[k])
+		}
+	}
+	balance(t, rep)
+	golden(t, "problems_csv.golden", rep.String())
+}
+
+func TestReadLineProtocolProblems(t *testing.T) {
+	var got []sample
+	opt := ReadOptions{Measurement: "tank_level", Tanks: map[string]bool{"T1": true, "T 2": true, "T,3=x": true}}
+	rep, err := ReadFile(context.Background(), "testdata/problems.lp", FormatAuto, opt, collect(&got))
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []sample{
+		{"T1", 1709251200000000000, 1.25},
+		{"T1", 1709251260000000000, 1.24},
+		{"T1", 1709251320000000000, 12},
+		{"T1", 1709251330000000000, 13},
+		{"T 2", 1709251330000000000, 0.5},
+		{"T,3=x", 1709251330000000000, 0.5},
+		{"T1", 1709251400000000000, 0.95},
+	}
+	if fmt.Sprint(got) != fmt.Sprint(want) {
+		t.Errorf("samples\n got %v\nwant %v", got, want)
+	}
+	wantCounts := map[ProblemKind]int64{
+		DuplicateTime: 1, OutOfOrder: 1, NaN: 1, EmptyValue: 1, UnknownTank: 1, Malformed: 10, Truncated: 1,
+	}
+	for _, k := range Kinds {
+		if rep.Counts[k] != wantCounts[k] {
+			t.Errorf("Counts[%s] = %d, want %d", k, rep.Counts[k], wantCounts[k])
+		}
+	}
+	if rep.Foreign != 3 {
+		t.Errorf("Foreign = %d, want 3 (pump_speed, valve-only, escaped measurement name)", rep.Foreign)
+	}
+	balance(t, rep)
+	golden(t, "problems_lp.golden", rep.String())
+}
+
+func TestParseTime(t *testing.T) {
+	const t0 = 1709251200 // 2024-03-01T00:00:00Z
+	tests := []struct {
+		in   string
+		prec Precision
+		want int64
+		err  bool
+	}{
+		{"2024-03-01T00:00:00Z", PrecisionAuto, t0 * 1e9, false},
+		{"2024-03-01T01:00:00.5+01:00", PrecisionAuto, t0*1e9 + 5e8, false},
+		{"2024-03-01T00:00:00.000000001Z", PrecisionAuto, t0*1e9 + 1, false},
+		{"1709251200", PrecisionAuto, t0 * 1e9, false},
+		{"1709251200.25", PrecisionAuto, t0*1e9 + 25e7, false},
+		{"1709251200000", PrecisionAuto, t0 * 1e9, false},
+		{"1709251200000.5", PrecisionAuto, t0*1e9 + 5e5, false},
+		{"1709251200000000", PrecisionAuto, t0 * 1e9, false},
+		{"1709251200000000000", PrecisionAuto, t0 * 1e9, false},
+		{"1709251200000000000.9", PrecisionAuto, t0 * 1e9, false}, // below 1 ns: truncated
+		{"-86400", PrecisionAuto, -86400e9, false},
+		{"0", PrecisionAuto, 0, false},
+		// Below 1e11 is seconds (and beyond 2262 out of range); 1e11 is
+		// milliseconds (1973-03-03).
+		{"9223372036", PrecisionAuto, 9223372036e9, false},
+		{"99999999999", PrecisionAuto, 0, true},
+		{"100000000000", PrecisionAuto, 100000000000e6, false},
+		{"1709251200", PrecisionMs, t0 * 1e6, false},
+		{"1709251200", PrecisionNs, t0, false},
+		{"1709251200.123456789", PrecisionS, t0*1e9 + 123456789, false},
+		{"9223372036854775807", PrecisionNs, math.MaxInt64, false},
+		{"9223372036854775808", PrecisionNs, 0, true},
+		{"9300000000", PrecisionS, 0, true},
+		{"99999999999999999999999", PrecisionAuto, 0, true},
+		{"2262-04-12T00:00:00Z", PrecisionAuto, 0, true},
+		{"2024-02-30T00:00:00Z", PrecisionAuto, 0, true},
+		{"2024-03-01", PrecisionAuto, 0, true},
+		{"", PrecisionAuto, 0, true},
+		{".", PrecisionAuto, 0, true},
+		{"12a", PrecisionAuto, 0, true},
+		{"1.2.3", PrecisionAuto, 0, true},
+	}
+	for _, tc := range tests {
+		got, err := parseTime([]byte(tc.in), tc.prec)
+		if (err != nil) != tc.err || got != tc.want {
+			t.Errorf("parseTime(%q, %v) = %d, %v; want %d, error %v", tc.in, tc.prec, got, err, tc.want, tc.err)
+		}
+	}
+}
+
+func TestReadLineProtocolPrecisionAndInflow(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "a.lp")
+	data := "m,tank=A level=2,inflow=3 1000\n" +
+		"m,tank=A inflow=4 1500\n" +
+		"m,tank=A level=1.5 2000\n" +
+		"m,tank=A level=1.4,inflow=x 3000\n" +
+		"m,tank=A inflow=5 1200\n" // out of order for the meter
+	if err := os.WriteFile(p, []byte(data), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var lv, fl []sample
+	opt := ReadOptions{Precision: PrecisionS, InflowField: "inflow", OnInflow: collect(&fl)}
+	rep, err := ReadFile(context.Background(), p, FormatLineProtocol, opt, collect(&lv))
+	if err != nil {
+		t.Fatal(err)
+	}
+	wantLv := []sample{{"A", 1000e9, 2}, {"A", 2000e9, 1.5}, {"A", 3000e9, 1.4}}
+	wantFl := []sample{{"A", 1000e9, 3}, {"A", 1500e9, 4}}
+	if fmt.Sprint(lv) != fmt.Sprint(wantLv) || fmt.Sprint(fl) != fmt.Sprint(wantFl) {
+		t.Errorf("levels %v, inflow %v; want %v, %v", lv, fl, wantLv, wantFl)
+	}
+	if rep.Counts[Malformed] != 1 || rep.Counts[OutOfOrder] != 1 || rep.InflowSamples != 2 {
+		t.Errorf("report %+v: want 1 malformed inflow, 1 out-of-order inflow, 2 inflow samples", rep)
+	}
+}
+
+func TestReadGzipAndTruncated(t *testing.T) {
+	dir := t.TempDir()
+	var buf bytes.Buffer
+	zw := gzip.NewWriter(&buf)
+	times := make([]int64, 2000)
+	vals := make([]float64, len(times))
+	for i := range times {
+		times[i] = int64(i) * 1e9
+		vals[i] = float64(i) / 7
+	}
+	if err := WriteCSV(zw, "T1", times, vals); err != nil {
+		t.Fatal(err)
+	}
+	zw.Close()
+	whole := filepath.Join(dir, "whole.csv.gz")
+	cut := filepath.Join(dir, "cut.csv.gz")
+	os.WriteFile(whole, buf.Bytes(), 0o644)
+	os.WriteFile(cut, buf.Bytes()[:buf.Len()/2], 0o644)
+
+	var got []sample
+	rep, err := ReadFile(context.Background(), whole, FormatAuto, ReadOptions{}, collect(&got))
+	if err != nil || len(got) != len(times) || rep.Problems() != 0 {
+		t.Fatalf("whole: %d samples, %v, %v; want %d and no problem", len(got), rep, err, len(times))
+	}
+	got = got[:0]
+	rep, err = ReadFile(context.Background(), cut, FormatAuto, ReadOptions{}, collect(&got))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.Counts[Truncated] != 1 || len(got) == 0 || len(got) >= len(times) {
+		t.Errorf("cut: %d samples, report %v; want some samples and one truncated", len(got), rep)
+	}
+	balance(t, rep)
+	for i, s := range got {
+		if s.t != times[i] || s.v != vals[i] {
+			t.Fatalf("cut: sample %d = %v, want %v %v", i, s, times[i], vals[i])
+		}
+	}
+}
+
+func TestReadLongLine(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "long.csv")
+	long := "1,T1," + strings.Repeat("9", 200000)
+	os.WriteFile(p, []byte("time,tank,value\n1,T1,1\n"+long+"\n3,T1,3\n"), 0o644)
+	var got []sample
+	rep, err := ReadFile(context.Background(), p, FormatCSV, ReadOptions{MaxLineBytes: 1000}, collect(&got))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(got) != 2 || rep.Counts[Malformed] != 1 || rep.Lines != 4 {
+		t.Errorf("got %v, report %+v; want 2 samples, 1 malformed, 4 lines", got, rep)
+	}
+}
+
+func TestReadErrors(t *testing.T) {
+	dir := t.TempDir()
+	noHeader := filepath.Join(dir, "x.csv")
+	os.WriteFile(noHeader, []byte("1,T1,1\n"), 0o644)
+	notGz := filepath.Join(dir, "x.csv.gz")
+	os.WriteFile(notGz, []byte("time,tank,value\n"), 0o644)
+	for _, tc := range []struct{ path, want string }{
+		{noHeader, "x.csv:1: header"},
+		{notGz, "not a gzip stream"},
+		{filepath.Join(dir, "missing.csv"), "no such file"},
+		{filepath.Join(dir, "x.dat"), "cannot tell the format"},
+	} {
+		_, err := ReadFile(context.Background(), tc.path, FormatAuto, ReadOptions{}, func(string, int64, float64) {})
+		if err == nil || !strings.Contains(err.Error(), tc.want) || !strings.HasPrefix(err.Error(), "ingest: ") {
+			t.Errorf("ReadFile(%s) error = %v, want one containing %q", tc.path, err, tc.want)
+		}
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := ReadFile(ctx, noHeader, FormatAuto, ReadOptions{}, func(string, int64, float64) {}); err == nil {
+		t.Error("ReadFile with a cancelled context: no error")
+	}
+}
+
+func TestReadSeries(t *testing.T) {
+	dir := t.TempDir()
+	write := func(name, body string) {
+		if err := os.WriteFile(filepath.Join(dir, name), []byte(body), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	// Two days, T1 in mm (zero offset 10 mm, outlet 0.1 m), T2 in kPa.
+	write("2024-03-01.lp", "lvl,tank=T1 level=1010 100\nlvl,tank=T2 p=1 100\nlvl,tank=T1 level=910 200\nlvl,tank=T2 level=9.789063734554999 200\n")
+	write("2024-03-02.lp", "lvl,tank=T1 level=810 300\nlvl,tank=T1 level=700 150\nlvl,tank=T3 level=1 300\nlvl,tank=T1 level=790,q=2 400\n")
+	conv := map[string]Conversion{
+		"T1": {Sensor: Sensor{Kind: Depth, UnitToSI: 1e-3, ZeroOffset: 10}, OutletElevM: 0.1, InflowToSI: 1e-3},
+		"T2": {Sensor: Sensor{Kind: Pressure, UnitToSI: 1000}},
+	}
+	opt := ReadOptions{InflowField: "q"}
+	series, rep, err := ReadSeries(context.Background(), []string{filepath.Join(dir, "*.lp"), filepath.Join(dir, "2024-03-01.lp")}, FormatAuto, opt, conv)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s1 := series["T1"]
+	if s1 == nil || fmt.Sprint(s1.TimeNs) != "[100 200 300 400]" {
+		t.Fatalf("T1 = %+v, want times [100 200 300 400]", s1)
+	}
+	for i, want := range []float64{0.9, 0.8, 0.7, 0.68} {
+		if math.Abs(s1.HeadM[i]-want) > 1e-12 {
+			t.Errorf("T1 head[%d] = %.15g, want %v", i, s1.HeadM[i], want)
+		}
+	}
+	if len(s1.InflowM3s) != 4 || !math.IsNaN(s1.InflowM3s[0]) || s1.InflowM3s[3] != 2e-3 {
+		t.Errorf("T1 inflow = %v, want [NaN NaN NaN 0.002]", s1.InflowM3s)
+	}
+	// 9.789063734554999 kPa = 998.2067 kg/m^3 · 9.80665 m/s^2 · 1 m (computed).
+	if s2 := series["T2"]; s2 == nil || s2.Len() != 1 || math.Abs(s2.HeadM[0]-1) > 1e-12 || s2.InflowM3s != nil {
+		t.Errorf("T2 = %+v, want one sample of 1 m head and no inflow", s2)
+	}
+	if rep.Files != 2 || rep.Counts[OutOfOrder] != 1 || rep.Counts[UnknownTank] != 1 || rep.Foreign != 1 {
+		t.Errorf("report: %v", rep)
+	}
+	if _, _, err := ReadSeries(context.Background(), []string{filepath.Join(dir, "*.csv")}, FormatAuto, opt, conv); err == nil {
+		t.Error("pattern without matches: no error")
+	}
+	if _, _, err := ReadSeries(context.Background(), nil, FormatAuto, opt, map[string]Conversion{"X": {}}); err == nil {
+		t.Error("invalid sensor: no error")
+	}
+}
