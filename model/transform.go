@@ -226,6 +226,74 @@ func (ht *HeadTransform) F(headM float64) float64 {
 	return c[0] + t*(c[1]+t*(c[2]+t*c[3]))
 }
 
+// fg returns F(h) and g = dh/dF = sqrt(h)/A(h) at h > 0, with g taken from
+// the interpolant's own derivative where F is tabulated (so that it is the
+// exact derivative of the function evaluated). g is 0 where the area is 0.
+func (ht *HeadTransform) fg(headM float64) (f, g float64) {
+	if !(headM > 0) {
+		return 0, 0
+	}
+	u := math.Sqrt(headM)
+	if ht.constA > 0 {
+		return 2 * ht.constA * u, u / ht.constA
+	}
+	if u >= ht.uMax {
+		f = ht.fTop + 2*ht.aTop*(u-ht.uMax)
+		if ht.aTop > 0 {
+			g = u / ht.aTop
+		}
+		return f, g
+	}
+	x := u * ht.invDu
+	j := int(x)
+	if j >= len(ht.poly) {
+		j = len(ht.poly) - 1
+	}
+	if j < directIntervals {
+		if a := ht.area(headM); a > 0 {
+			g = u / a
+		}
+		return ht.direct(u), g
+	}
+	t := x - float64(j)
+	c := &ht.poly[j]
+	if d := c[1] + t*(2*c[2]+3*t*c[3]); d > 0 {
+		g = 2 * u * ht.du / d
+	}
+	return c[0] + t*(c[1]+t*(c[2]+t*c[3])), g
+}
+
+// invG inverts F like inv and also returns g = dh/dF at the result (0 at
+// zero head or zero area).
+func (ht *HeadTransform) invG(f float64, hint int) (h, g float64, j int) {
+	if !(f > 0) {
+		return 0, 0, hint
+	}
+	if ht.constA > 0 {
+		u := f / (2 * ht.constA)
+		return u * u, u / ht.constA, 0
+	}
+	h, j = ht.inv(f, hint)
+	u := math.Sqrt(h)
+	switch {
+	case f >= ht.fTop:
+		if ht.aTop > 0 {
+			g = u / ht.aTop
+		}
+	case j < directIntervals:
+		if a := ht.area(h); a > 0 {
+			g = u / a
+		}
+	default:
+		t := u*ht.invDu - float64(j)
+		c := &ht.poly[j]
+		if d := c[1] + t*(2*c[2]+3*t*c[3]); d > 0 {
+			g = 2 * u * ht.du / d
+		}
+	}
+	return h, g, j
+}
+
 // directIntervals is the number of bottom intervals where F is integrated
 // directly instead of interpolated: where the area vanishes at the outlet
 // (sphere, cone, horizontal cylinder) F grows like a power of u and a cubic

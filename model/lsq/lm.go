@@ -51,6 +51,10 @@ type Options struct {
 	GTol float64
 	// Lambda0 is the initial damping relative to diag(JᵀJ). Default 1e-3.
 	Lambda0 float64
+	// Fused makes MinimizeNormal ask for JᵀJ and Jᵀr at every trial point,
+	// saving one pass per accepted step when the caller computes residuals
+	// and derivatives together anyway. Default false.
+	Fused bool
 }
 
 func (o *Options) defaults() Options {
@@ -58,6 +62,7 @@ func (o *Options) defaults() Options {
 	if o == nil {
 		return d
 	}
+	d.Fused = o.Fused
 	if o.MaxIterations > 0 {
 		d.MaxIterations = o.MaxIterations
 	}
@@ -191,13 +196,24 @@ func minimizeOnce(f NormalFunc, p0 []float64, m int, o Options) (Result, bool, e
 			}
 			pred += delta * (lambda*w.d[i]*delta - w.jtr[i])
 		}
-		ssTry := f(w.pTry, nil, nil)
+		var ssTry float64
+		if o.Fused {
+			ssTry = f(w.pTry, w.jtjTry, w.jtrTry)
+		} else {
+			ssTry = f(w.pTry, nil, nil)
+		}
 		if ssTry < ss || (ssTry == ss && small) {
 			rho := (ss - ssTry) / pred
 			decrease := ss - ssTry
 			copy(p, w.pTry)
 			oldSS := ss
-			ss = f(p, w.jtj, w.jtr)
+			if o.Fused {
+				ss = ssTry
+				w.jtj, w.jtjTry = w.jtjTry, w.jtj
+				w.jtr, w.jtrTry = w.jtrTry, w.jtr
+			} else {
+				ss = f(p, w.jtj, w.jtr)
+			}
 			lambda *= math.Max(1.0/3, 1-math.Pow(2*rho-1, 3))
 			lambda = math.Max(lambda, 1e-300)
 			nu = 2
@@ -284,13 +300,16 @@ func covFromNormal(w *work, n int, s2 float64, res *Result) bool {
 }
 
 type work struct {
-	jtj, a                   []float64
+	jtj, a, jtjTry           []float64
 	jtr, b, d, s, step, pTry []float64
+	jtrTry                   []float64
 }
 
 func newWork(n int) *work {
-	buf := make([]float64, 2*n*n+6*n)
+	buf := make([]float64, 3*n*n+7*n)
 	w := &work{}
+	w.jtjTry, buf = buf[:n*n], buf[n*n:]
+	w.jtrTry, buf = buf[:n], buf[n:]
 	w.jtj, buf = buf[:n*n], buf[n*n:]
 	w.a, buf = buf[:n*n], buf[n*n:]
 	w.jtr, buf = buf[:n], buf[n:]
@@ -530,4 +549,33 @@ func covFromQR(x *mat.Dense, s2 float64) ([]float64, bool) {
 		}
 	}
 	return cov, true
+}
+
+// InverseSPD returns the inverse of the symmetric positive definite n×n
+// matrix a (row-major; a is not modified), computed by Cholesky after Jacobi
+// scaling. It reports false when a is not positive definite.
+func InverseSPD(a []float64, n int) ([]float64, bool) {
+	s := make([]float64, n)
+	for i := range n {
+		if !(a[i*n+i] > 0) {
+			return nil, false
+		}
+		s[i] = 1 / math.Sqrt(a[i*n+i])
+	}
+	w := make([]float64, n*n)
+	for i := range n {
+		for j := range n {
+			w[i*n+j] = a[i*n+j] * s[i] * s[j]
+		}
+	}
+	inv := make([]float64, n*n)
+	if !cholInverse(w, inv, n) {
+		return nil, false
+	}
+	for i := range n {
+		for j := range n {
+			inv[i*n+j] *= s[i] * s[j]
+		}
+	}
+	return inv, true
 }

@@ -1,0 +1,219 @@
+package model
+
+import (
+	"math"
+
+	"drainsight/model/lsq"
+)
+
+// madScale is 1/Φ^-1(3/4): MAD * madScale estimates σ for Gaussian data.
+const madScale = 1.482602218505602
+
+// medianInPlace returns the median of x, reordering x (quickselect, O(n)).
+// x must not be empty.
+func medianInPlace(x []float64) float64 {
+	n := len(x)
+	k := n / 2
+	hi := selectKth(x, k)
+	if n%2 == 1 {
+		return hi
+	}
+	lo := x[0]
+	for _, v := range x[:k] {
+		if v > lo {
+			lo = v
+		}
+	}
+	return 0.5 * (lo + hi)
+}
+
+// selectKth moves the k-th smallest element to x[k] (elements before it are
+// not larger, after it not smaller) and returns it.
+func selectKth(x []float64, k int) float64 {
+	lo, hi := 0, len(x)-1
+	for hi > lo {
+		// median of three pivot
+		mid := lo + (hi-lo)/2
+		if x[mid] < x[lo] {
+			x[mid], x[lo] = x[lo], x[mid]
+		}
+		if x[hi] < x[lo] {
+			x[hi], x[lo] = x[lo], x[hi]
+		}
+		if x[hi] < x[mid] {
+			x[hi], x[mid] = x[mid], x[hi]
+		}
+		p := x[mid]
+		i, j := lo, hi
+		for i <= j {
+			for x[i] < p {
+				i++
+			}
+			for x[j] > p {
+				j--
+			}
+			if i <= j {
+				x[i], x[j] = x[j], x[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return x[k]
+		}
+	}
+	return x[k]
+}
+
+// lineFit is a weighted straight line z = a + b x.
+type lineFit struct {
+	a, b   float64
+	sxx    float64 // Σ w (x - x̄)^2
+	sumW   float64
+	xbar   float64
+	ss     float64 // Σ w (z - a - b x)^2
+	n      int     // points with w > 0
+	sigma  float64 // robust scale of sqrt(w) * residual (MAD)
+	robust bool    // IRLS was needed
+}
+
+// fitLine computes the weighted least-squares line over points with w > 0.
+func fitLine(x, z, w []float64) lineFit {
+	var sw, swx, swz float64
+	n := 0
+	for i, wi := range w {
+		if wi > 0 {
+			sw += wi
+			swx += wi * x[i]
+			swz += wi * z[i]
+			n++
+		}
+	}
+	lf := lineFit{sumW: sw, n: n}
+	if n < 2 || !(sw > 0) {
+		lf.a, lf.b = math.NaN(), math.NaN()
+		return lf
+	}
+	xb, zb := swx/sw, swz/sw
+	var sxx, sxz float64
+	for i, wi := range w {
+		if wi > 0 {
+			dx := x[i] - xb
+			sxx += wi * dx * dx
+			sxz += wi * dx * (z[i] - zb)
+		}
+	}
+	lf.xbar, lf.sxx = xb, sxx
+	lf.b = sxz / sxx
+	lf.a = zb - lf.b*xb
+	return lf
+}
+
+// robustLineFit fits z = a + b x with base weights w0 (0 excludes a point)
+// and, when some standardised residual e_i = sqrt(w0_i)(z_i - a - b x_i)
+// exceeds zOut robust σ, refines by iteratively reweighted least squares
+// (Huber weights min(1, c/|u|) or Tukey biweight (1-(u/c)^2)^2, u = e/σ,
+// σ = 1.4826 MAD of e, fixed after the first fit). On return out[i] is true
+// for points with |e_i| > zOut σ at the final line, which are also dropped
+// from ss and n. scratch must have len(x) capacity; w is overwritten with
+// the final weights.
+func robustLineFit(x, z, w0, w, scratch []float64, out []bool, tukey bool, c, zOut float64, iters int) lineFit {
+	copy(w, w0)
+	lf := fitLine(x, z, w)
+	if lf.n < 3 {
+		return lf
+	}
+	abs := scratch[:0]
+	for i, wi := range w0 {
+		if wi > 0 {
+			abs = append(abs, math.Abs(math.Sqrt(wi)*(z[i]-lf.a-lf.b*x[i])))
+		}
+	}
+	sigma := madScale * medianInPlace(abs)
+	if !(sigma > 0) {
+		// More than half the points sit exactly on the line: use the
+		// classical scale of the rest so that gross errors still show.
+		var s float64
+		for i, wi := range w0 {
+			if wi > 0 {
+				e := z[i] - lf.a - lf.b*x[i]
+				s += wi * e * e
+			}
+		}
+		sigma = math.Sqrt(s / float64(lf.n))
+	}
+	lf.sigma = sigma
+	lim := zOut * sigma
+	need := false
+	for i, wi := range w0 {
+		if wi > 0 && math.Abs(math.Sqrt(wi)*(z[i]-lf.a-lf.b*x[i])) > lim {
+			need = true
+			break
+		}
+	}
+	if need && sigma > 0 {
+		lf.robust = true
+		for range iters {
+			for i, wi := range w0 {
+				if !(wi > 0) {
+					w[i] = 0
+					continue
+				}
+				u := math.Sqrt(wi) * (z[i] - lf.a - lf.b*x[i]) / (c * sigma)
+				au := math.Abs(u)
+				switch {
+				case tukey && au >= 1:
+					w[i] = 0
+				case tukey:
+					v := 1 - u*u
+					w[i] = wi * v * v
+				case au > 1:
+					w[i] = wi / au
+				default:
+					w[i] = wi
+				}
+			}
+			nf := fitLine(x, z, w)
+			if nf.n < 3 {
+				break
+			}
+			nf.sigma, nf.robust = sigma, true
+			lf = nf
+		}
+	}
+	// Classify at the robust line, then refit plain WLS over the inliers so
+	// that a, b, ss and sxx are the classical estimates on the kept points.
+	nOut := 0
+	for i, wi := range w0 {
+		out[i] = false
+		w[i] = wi
+		if wi > 0 && sigma > 0 && math.Abs(math.Sqrt(wi)*(z[i]-lf.a-lf.b*x[i])) > lim {
+			out[i] = true
+			w[i] = 0
+			nOut++
+		}
+	}
+	robust := lf.robust
+	if nOut > 0 || robust {
+		lf = fitLine(x, z, w)
+		lf.robust = robust
+	}
+	lf.sigma = sigma
+	var ss float64
+	for i, wi := range w {
+		if wi > 0 {
+			e := z[i] - lf.a - lf.b*x[i]
+			ss += wi * e * e
+		}
+	}
+	lf.ss = ss
+	return lf
+}
+
+// invSmall inverts a small symmetric positive definite matrix.
+func invSmall(a []float64, n int) ([]float64, bool) { return lsq.InverseSPD(a, n) }
