@@ -1,0 +1,528 @@
+package model
+
+import (
+	"math"
+	"time"
+)
+
+// SegmentOptions tunes the Segmenter. The zero value selects the documented
+// defaults; several defaults scale with the noise level σ of the reading.
+type SegmentOptions struct {
+	// MinDropM is the smallest fall (m, smoothed level) kept as a drain.
+	// Default max(0.05 m, 20 σ).
+	MinDropM float64
+	// MinDuration is the shortest fall kept as a drain (and rise kept as a
+	// fill). Default 2 min.
+	MinDuration time.Duration
+	// Transient is trimmed from the start of each drain (valve opening).
+	// Default 15 s; a negative value trims nothing.
+	Transient time.Duration
+	// EmptyHeadM: on a complete drain, the tail whose smoothed head is within
+	// EmptyHeadM of the empty plateau is trimmed, and a plateau within
+	// EmptyHeadM of zero head is taken as the outlet. Default max(5 σ, 1 % of
+	// the drop).
+	EmptyHeadM float64
+	// GapLimit: a step between samples longer than this is counted as a gap
+	// (Segment.GapCount). Default 5 min. A gap longer than the stall limit
+	// (see Settle) ends whatever was under way.
+	GapLimit time.Duration
+	// NoiseM is the standard deviation of the reading (m). 0 estimates it
+	// robustly from the data: 1.4826 × median|second difference| / sqrt(6)
+	// per 10-minute block (aligned to Unix time), median over the last 48
+	// blocks.
+	NoiseM float64
+	// Settle holds back a segment until the data reach Settle past its end:
+	// it may still be under way. It also caps the quiet time that ends a
+	// drain or fill, so a pause longer than Settle always splits a drain.
+	// Default 30 min; a negative value releases segments as soon as they
+	// are decided (the stall cap is then 30 min).
+	Settle time.Duration
+	// MinIdle is the shortest idle period emitted. Default 1 h.
+	MinIdle time.Duration
+	// MaxIdle bounds the length of one idle segment: long idle stretches are
+	// cut at multiples of MaxIdle since the Unix epoch, so that every scan
+	// cuts them at the same instants. Default 24 h (UTC midnights).
+	MaxIdle time.Duration
+	// Window is the time over which a fall (rise) must exceed the trigger
+	// level, max(6 σ, 3 mm), to open a drain (fill). It sets the slowest
+	// event seen: trigger/Window (default 30 min: 6 mm/h at σ ≤ 0.5 mm).
+	Window time.Duration
+	// EmitFromNs drops segments with RawStartNs < EmitFromNs: an earlier
+	// scan emitted them. 0 means no limit.
+	EmitFromNs int64
+}
+
+// SegmentStats counts what a Segmenter saw and decided.
+type SegmentStats struct {
+	Samples        int // samples accepted
+	Invalid        int // samples rejected: non-finite head or time not increasing
+	Spikes         int // samples flagged as spikes
+	Drains         int // drain segments emitted
+	Idles          int // idle segments emitted
+	Fills          int // fill segments emitted
+	RejectedSmall  int // falls shorter than MinDuration, below MinDropM or too few samples
+	RejectedInflow int // falls inconsistent with gravity outflow alone (unmetered inflow)
+	Dropped        int // segments dropped because RawStartNs < EmitFromNs
+}
+
+const (
+	noiseFloorM     = 1e-4 // smallest σ used, m
+	noiseDefaultM   = 1e-3 // σ used before any estimate, m
+	trigFloorM      = 3e-3 // smallest trigger level, m (a few quantisation steps of common sensors)
+	trigSigmas      = 6.0  // trigger level in σ
+	spikeSigmas     = 6.0  // spike threshold in σ
+	kneeSigmas      = 1.5  // knee tolerance in σ of the raw reading (≈ 2.7 σ of the median-of-5)
+	minDrainSamples = 6    // fewest kept samples in a drain
+	ratioLo         = 0.6  // accepted range of K(second half)/K(first half)
+	ratioHi         = 1.6
+)
+
+const (
+	stQuiet = iota
+	stFall
+	stRise
+)
+
+// Segmenter cuts a level history into drains, idle periods and fills,
+// incrementally: Push the samples in time order, in chunks of any size, and
+// Take the segments as they are decided. Memory is bounded by the longest
+// drain, fill or idle segment (≤ MaxIdle + MinIdle), never by the history.
+//
+// The method, per sample, O(1) amortised:
+//
+//  1. Input check: samples with a non-finite head or a time not after the
+//     previous one are dropped (counted in Stats().Invalid).
+//  2. Noise σ (unless given): robust scatter of second differences.
+//  3. Spikes: a Hampel filter on a centred window of 5 samples; a sample
+//     further than max(6 σ, 3 mm) from the window median is a spike. The
+//     median-of-5 level y is exact on any monotone curve, so it keeps the
+//     knees of a drain, and it drives all decisions below.
+//  4. Events: a fall (rise) opens when y drops (rises) more than
+//     max(6 σ, 3 mm) below (above) its maximum (minimum) over Window. The
+//     start (knee) is the last sample still within 1.2 σ of that extreme. A
+//     fall ends when y has made no new low (by σ) for the stall time
+//     clamp(max(elapsed/4, 4 σ/rate, 5 samples, 2 min), ≤ Settle), or when
+//     it rises again.
+//  5. A drain is kept when it falls at least MinDropM over at least
+//     MinDuration. The plateau after it (median reading p) decides Complete:
+//     |p| ≤ EmptyHeadM, or else the outlet law fits better with the datum at
+//     p than at zero. The transient and, when complete, the empty tail are
+//     trimmed. Finally the mass balance K = (ΔV + ∫q dt)/∫sqrt(h) dt over
+//     the first and the second half must agree within a factor 1.6: a fall
+//     fed by unmetered inflow slows down far more than the square-root law
+//     allows and is rejected.
+//  6. Quiet stretches of at least MinIdle are idle segments (broken by
+//     metered inflow and cut at multiples of MaxIdle).
+//
+// Results do not depend on how the samples are split into Push calls.
+// A Segmenter is not safe for concurrent use.
+type Segmenter struct {
+	tank     *Tank
+	id       string
+	opt      SegmentOptions
+	minDurNs int64
+	transNs  int64
+	gapNs    int64
+	settleNs int64
+	stallNs  int64
+	minIdle  int64
+	maxIdle  int64
+	winNs    int64
+	emitFrom int64
+
+	meterSet bool
+	metered  bool
+	finished bool
+	firstT   int64
+	lastT    int64 // last accepted input time
+	n        int   // accepted samples
+
+	noise noiseEstimator
+	sigma float64
+	trig  float64
+	hthr  float64
+
+	// last 5 accepted input samples, by accepted index mod 5
+	rt   [5]int64
+	rh   [5]float64
+	rq   [5]float64
+	rpos int
+	// the two previous accepted samples, for the noise estimate
+	t1, t2   int64
+	h1, h2   float64
+	estimate bool
+
+	// history of filtered samples from absolute index base on
+	base int
+	hist []hsample
+	done int // samples processed by the detector
+
+	state      int
+	stateStart int
+	idleStart  int
+	cutAt      int64 // time at which the idle stretch is cut at cutBound
+	cutBound   int64
+	maxdq      deque
+	mindq      deque
+	knee       int
+	ext        float64 // running extreme since the knee (min for a fall, max for a rise)
+	iExt       int
+	mark       float64
+	iMark      int
+	timeoutNs  int64
+	prevT      int64
+
+	queue         []Segment
+	ready         []Segment
+	lastEmitStart int64
+	anyEmit       bool
+	stats         SegmentStats
+	scratch       []float64
+}
+
+// hsample is one filtered sample.
+type hsample struct {
+	t int64
+	r float64 // raw reading, m
+	y float64 // median-of-5 level, m
+	q float64 // metered inflow, m^3/s (NaN when not metered)
+	k bool    // spike
+}
+
+// NewSegmenter returns a Segmenter for tank t (its ID names the segments and
+// its shape turns heads into volumes; nil means a unit-area vertical tank).
+func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
+	s := &Segmenter{tank: t, opt: opt}
+	if t != nil {
+		s.id = t.ID
+	}
+	dur := func(d, def time.Duration) int64 {
+		if d == 0 {
+			return int64(def)
+		}
+		return int64(d)
+	}
+	s.minDurNs = dur(opt.MinDuration, 2*time.Minute)
+	s.transNs = max(dur(opt.Transient, 15*time.Second), 0)
+	s.gapNs = dur(opt.GapLimit, 5*time.Minute)
+	s.settleNs = dur(opt.Settle, 30*time.Minute)
+	s.stallNs = s.settleNs
+	if s.settleNs <= 0 {
+		s.settleNs = 0
+		s.stallNs = int64(30 * time.Minute)
+	}
+	s.minIdle = max(dur(opt.MinIdle, time.Hour), 1)
+	s.maxIdle = max(dur(opt.MaxIdle, 24*time.Hour), 2*s.minIdle)
+	s.winNs = max(dur(opt.Window, 30*time.Minute), 1)
+	s.emitFrom = opt.EmitFromNs
+	if s.emitFrom == 0 {
+		s.emitFrom = math.MinInt64
+	}
+	s.estimate = !(opt.NoiseM > 0)
+	s.noise.init()
+	s.setSigma()
+	s.cutAt = math.MaxInt64
+	return s
+}
+
+// Stats returns the counters so far.
+func (s *Segmenter) Stats() SegmentStats { return s.stats }
+
+// NoiseM returns the noise level σ in use (m).
+func (s *Segmenter) NoiseM() float64 { return s.sigma }
+
+func (s *Segmenter) setSigma() {
+	sg := s.opt.NoiseM
+	if !(sg > 0) {
+		sg = s.noise.sigma
+	}
+	if !(sg >= noiseFloorM) { // also catches NaN
+		sg = noiseFloorM
+	}
+	if sg > 1 {
+		sg = 1
+	}
+	s.sigma = sg
+	s.trig = max(trigSigmas*sg, trigFloorM)
+	s.hthr = max(spikeSigmas*sg, trigFloorM)
+}
+
+// Push feeds samples in time order. timeNs and headM must have the same
+// length; inflowM3s is nil without an inflow meter, else the same length.
+// Whether the tank is metered is fixed by the first Push with data. Invalid
+// samples are dropped and counted, never a panic. Push after Flush panics.
+func (s *Segmenter) Push(timeNs []int64, headM, inflowM3s []float64) {
+	if s.finished {
+		panic("model: Segmenter.Push after Flush")
+	}
+	if len(headM) != len(timeNs) || (inflowM3s != nil && len(inflowM3s) != len(timeNs)) {
+		panic("model: Segmenter.Push with slices of different lengths")
+	}
+	if len(timeNs) == 0 {
+		return
+	}
+	if !s.meterSet {
+		s.meterSet = true
+		s.metered = inflowM3s != nil
+	}
+	nan := math.NaN()
+	for i, t := range timeNs {
+		h := headM[i]
+		if math.IsNaN(h) || math.IsInf(h, 0) || (s.n > 0 && t <= s.lastT) {
+			s.stats.Invalid++
+			continue
+		}
+		q := nan
+		if s.metered && inflowM3s != nil {
+			q = inflowM3s[i]
+		}
+		s.accept(t, h, q)
+	}
+	s.compact()
+}
+
+func (s *Segmenter) accept(t int64, h, q float64) {
+	n := s.n
+	if n == 0 {
+		s.firstT = t
+	}
+	if s.estimate && n >= 2 && t-s.t1 <= s.gapNs && s.t1-s.t2 <= s.gapNs {
+		if s.noise.add(t, math.Abs(h-2*s.h1+s.h2)) {
+			s.setSigma()
+		}
+	}
+	s.t2, s.h2 = s.t1, s.h1
+	s.t1, s.h1 = t, h
+	p := s.rpos
+	s.rt[p], s.rh[p], s.rq[p] = t, h, q
+	if p++; p == 5 {
+		p = 0
+	}
+	s.rpos = p
+	s.n = n + 1
+	s.lastT = t
+	s.stats.Samples++
+	if n >= 4 {
+		// p is now the slot of sample n-4; sample n-2 sits two slots on
+		j := p + 2
+		if j >= 5 {
+			j -= 5
+		}
+		s.emit(n-2, j, med5(s.rh[0], s.rh[1], s.rh[2], s.rh[3], s.rh[4]))
+	} else if n >= 2 {
+		s.filter(n-2, n)
+	}
+	if n&4095 == 4095 {
+		s.compact()
+	}
+}
+
+// med5 is the median of five values without data-dependent branches (the
+// compiler turns fmin/fmax into conditional moves): f and g are the second
+// and third smallest of a..d in some order, and the median of five is the
+// median of e, f and g.
+func med5(a, b, c, d, e float64) float64 {
+	f := fmax(fmin(a, b), fmin(c, d))
+	g := fmin(fmax(a, b), fmax(c, d))
+	return fmax(fmin(e, f), fmin(fmax(e, f), g))
+}
+
+func fmin(a, b float64) float64 {
+	if a < b {
+		return a
+	}
+	return b
+}
+
+func fmax(a, b float64) float64 {
+	if a > b {
+		return a
+	}
+	return b
+}
+
+// filter emits filtered sample j using accepted samples up to hi.
+func (s *Segmenter) filter(j, hi int) {
+	lo := max(j-2, 0)
+	var w [5]float64
+	m := 0
+	for k := lo; k <= hi; k++ {
+		v := s.rh[k%5]
+		// insertion sort
+		x := m
+		for x > 0 && w[x-1] > v {
+			w[x] = w[x-1]
+			x--
+		}
+		w[x] = v
+		m++
+	}
+	var med float64
+	if m&1 == 1 {
+		med = w[m/2]
+	} else {
+		med = 0.5 * (w[m/2-1] + w[m/2])
+	}
+	s.emit(j, j%5, med)
+}
+
+// emit appends filtered sample j (ring slot p, window median med) to the
+// history and runs the detector on it.
+func (s *Segmenter) emit(j, p int, med float64) {
+	raw := s.rh[p]
+	spike := math.Abs(raw-med) > s.hthr
+	if spike {
+		s.stats.Spikes++
+	}
+	s.hist = append(s.hist, hsample{t: s.rt[p], r: raw, y: med, q: s.rq[p], k: spike})
+	s.step(j)
+	s.done = j + 1
+}
+
+// Take returns the segments released since the last Take, in time order.
+func (s *Segmenter) Take() []Segment {
+	s.release()
+	out := s.ready
+	s.ready = nil
+	return out
+}
+
+// Flush processes the samples still held by the spike filter and returns
+// the segments released so far. Segments whose end is within Settle of the
+// last sample, and whatever is still under way, are not emitted: a later
+// scan from CommittedNs emits them. The Segmenter accepts no more samples.
+func (s *Segmenter) Flush() []Segment {
+	if !s.finished {
+		for j := s.done; j < s.n; j++ {
+			s.filter(j, s.n-1)
+		}
+		s.finished = true
+	}
+	return s.Take()
+}
+
+func (s *Segmenter) release() {
+	k := 0
+	for ; k < len(s.queue); k++ {
+		g := &s.queue[k]
+		if s.n == 0 || g.RawEndNs > s.lastT-s.settleNs {
+			break
+		}
+		s.lastEmitStart, s.anyEmit = g.RawStartNs, true
+		if g.RawStartNs < s.emitFrom {
+			s.stats.Dropped++
+			continue
+		}
+		switch g.Kind {
+		case Drain:
+			s.stats.Drains++
+		case Idle:
+			s.stats.Idles++
+		case Fill:
+			s.stats.Fills++
+		}
+		s.ready = append(s.ready, *g)
+	}
+	if k > 0 {
+		n := copy(s.queue, s.queue[k:])
+		clear(s.queue[n:])
+		s.queue = s.queue[:n]
+	}
+}
+
+// CommittedNs is the time before which everything is decided and emitted.
+// A later scan that restarts from CommittedNs minus a lookback (longer than
+// the longest drain, and ≥ 8 h when σ is estimated) with EmitFromNs =
+// CommittedNs emits each segment exactly once. It lies half way between the
+// start of the last emitted segment and the start of the first one still
+// pending, so that small shifts of the boundaries between scans cannot move
+// a segment across it. It never goes below EmitFromNs.
+func (s *Segmenter) CommittedNs() int64 {
+	s.release()
+	if s.n == 0 {
+		if s.opt.EmitFromNs != 0 {
+			return s.opt.EmitFromNs
+		}
+		return math.MinInt64
+	}
+	pend := s.lastT
+	switch s.state {
+	case stQuiet:
+		if s.idleStart < s.done {
+			pend = s.hist[s.idleStart-s.base].t
+		}
+		if s.maxdq.n() > 0 {
+			pend = min(pend, s.hist[s.maxdq.front()-s.base].t)
+		}
+	default:
+		pend = s.hist[s.knee-s.base].t
+	}
+	if len(s.queue) > 0 {
+		pend = min(pend, s.queue[0].RawStartNs)
+	}
+	last := s.firstT
+	if s.anyEmit {
+		last = s.lastEmitStart
+	}
+	c := last + (pend-last)/2
+	if s.opt.EmitFromNs != 0 && c < s.opt.EmitFromNs {
+		c = s.opt.EmitFromNs
+	}
+	return c
+}
+
+// SegmentSeries cuts a whole series in one go; see Segmenter. Segments whose
+// end is within Settle of the last sample are not returned (set a negative
+// Settle to get them all).
+func SegmentSeries(t *Tank, s *Series, opt SegmentOptions) []Segment {
+	sg := NewSegmenter(t, opt)
+	if s.Tank != "" {
+		sg.id = s.Tank
+	}
+	sg.Push(s.TimeNs, s.HeadM, s.InflowM3s)
+	return sg.Flush()
+}
+
+// compact drops history no longer needed.
+func (s *Segmenter) compact() {
+	keep := s.done
+	switch s.state {
+	case stQuiet:
+		keep = min(keep, s.idleStart)
+		if s.maxdq.n() > 0 {
+			keep = min(keep, s.maxdq.front())
+		}
+		if s.mindq.n() > 0 {
+			keep = min(keep, s.mindq.front())
+		}
+	default:
+		keep = min(keep, s.knee)
+	}
+	drop := keep - s.base
+	if drop < 1024 || drop < len(s.hist)/2 {
+		return
+	}
+	n := copy(s.hist, s.hist[drop:])
+	s.hist = s.hist[:n]
+	s.base = keep
+}
+
+// deque is a double-ended queue of absolute sample indices.
+type deque struct {
+	v    []int
+	head int
+}
+
+func (d *deque) n() int     { return len(d.v) - d.head }
+func (d *deque) front() int { return d.v[d.head] }
+func (d *deque) back() int  { return d.v[len(d.v)-1] }
+func (d *deque) popBack()   { d.v = d.v[:len(d.v)-1] }
+func (d *deque) reset()     { d.v, d.head = d.v[:0], 0 }
+func (d *deque) popFront()  { d.head++ }
+func (d *deque) pushBack(i int) {
+	if d.head > 64 && d.head >= len(d.v)/2 {
+		n := copy(d.v, d.v[d.head:])
+		d.v, d.head = d.v[:n], 0
+	}
+	d.v = append(d.v, i)
+}

@@ -1,0 +1,460 @@
+package model
+
+import "math"
+
+func (s *Segmenter) tAt(i int) int64   { return s.hist[i-s.base].t }
+func (s *Segmenter) yAt(i int) float64 { return s.hist[i-s.base].y }
+
+// step runs the event detector on filtered sample i.
+func (s *Segmenter) step(i int) {
+	t := s.tAt(i)
+	if i > 0 && t-s.prevT > s.stallNs {
+		s.breakAt(i)
+	}
+	s.prevT = t
+	y := s.yAt(i)
+	switch s.state {
+	case stQuiet:
+		s.quietStep(i, t, y)
+	case stFall:
+		if y < s.ext {
+			s.ext, s.iExt = y, i
+		}
+		if y < s.mark-s.sigma {
+			s.mark, s.iMark = y, i
+			s.setTimeout()
+		}
+		if y > s.ext+s.trig {
+			k := s.kneeUp(s.iExt, i)
+			s.finishDrain(s.knee, s.iMark, k-1)
+			s.beginRise(k, i)
+			return
+		}
+		if t-s.tAt(s.iMark) > s.timeoutNs {
+			s.finishDrain(s.knee, s.iMark, i)
+			s.toQuiet(s.iMark+1, i)
+		}
+	case stRise:
+		if y > s.ext {
+			s.ext, s.iExt = y, i
+		}
+		if y > s.mark+s.sigma {
+			s.mark, s.iMark = y, i
+			s.setTimeout()
+		}
+		if y < s.ext-s.trig {
+			k := s.kneeDown(s.iExt, i)
+			s.finishFill(s.knee, s.iMark)
+			s.beginFall(k, i)
+			return
+		}
+		if t-s.tAt(s.iMark) > s.timeoutNs {
+			s.finishFill(s.knee, s.iMark)
+			s.toQuiet(s.iMark+1, i)
+		}
+	}
+}
+
+func (s *Segmenter) quietStep(i int, t int64, y float64) {
+	for s.maxdq.n() > 0 && s.yAt(s.maxdq.back()) <= y {
+		s.maxdq.popBack()
+	}
+	s.maxdq.pushBack(i)
+	for s.mindq.n() > 0 && s.yAt(s.mindq.back()) >= y {
+		s.mindq.popBack()
+	}
+	s.mindq.pushBack(i)
+	lo := t - s.winNs
+	for s.tAt(s.maxdq.front()) < lo {
+		s.maxdq.popFront()
+	}
+	for s.tAt(s.mindq.front()) < lo {
+		s.mindq.popFront()
+	}
+	if m := s.maxdq.front(); y < s.yAt(m)-s.trig {
+		k := s.kneeDown(m, i)
+		s.endIdle(k - 1)
+		s.beginFall(k, i)
+		return
+	}
+	if m := s.mindq.front(); y > s.yAt(m)+s.trig {
+		k := s.kneeUp(m, i)
+		s.endIdle(k - 1)
+		s.beginRise(k, i)
+		return
+	}
+	if s.metered && s.hist[i-s.base].q > 0 {
+		s.endIdle(i - 1)
+		s.idleStart = i + 1
+		s.cutAt = math.MaxInt64
+		return
+	}
+	if i == s.idleStart {
+		s.setCut()
+	}
+	if t >= s.cutAt {
+		c := s.idleStart
+		for s.tAt(c) < s.cutBound {
+			c++
+		}
+		s.endIdle(c - 1)
+		s.idleStart = c
+		s.setCut()
+	}
+}
+
+// setCut places the next aligned cut of the idle stretch from idleStart.
+func (s *Segmenter) setCut() {
+	ta := s.tAt(s.idleStart)
+	x := ta + s.minIdle
+	b := floorDiv(x, s.maxIdle) * s.maxIdle
+	if b < x {
+		b += s.maxIdle
+	}
+	s.cutBound = b
+	s.cutAt = b + s.minIdle
+	if s.cutAt < b { // overflow
+		s.cutAt = math.MaxInt64
+	}
+}
+
+// kneeDown finds the start of a fall that peaked at m and triggered at i:
+// the last sample still within kneeSigmas σ of the plateau level P, the
+// median of the level over up to 64 samples ending at the peak.
+func (s *Segmenter) kneeDown(m, i int) int {
+	thr := s.plateauBefore(m) - kneeSigmas*s.sigma
+	for j := i; j > m; j-- {
+		if s.yAt(j) >= thr {
+			return j
+		}
+	}
+	return m
+}
+
+func (s *Segmenter) kneeUp(m, i int) int {
+	thr := s.plateauBefore(m) + kneeSigmas*s.sigma
+	for j := i; j > m; j-- {
+		if s.yAt(j) <= thr {
+			return j
+		}
+	}
+	return m
+}
+
+func (s *Segmenter) plateauBefore(m int) float64 {
+	a := max(m-63, s.stateStart, s.base)
+	if s.state != stQuiet {
+		a = max(m-63, s.iMark)
+	}
+	s.scratch = s.scratch[:0]
+	for j := a; j <= m; j++ {
+		s.scratch = append(s.scratch, s.yAt(j))
+	}
+	return median(s.scratch)
+}
+
+func (s *Segmenter) beginFall(k, i int) {
+	s.state, s.knee = stFall, k
+	s.ext, s.iExt = s.yAt(k), k
+	s.mark, s.iMark = s.yAt(k), k
+	for j := k + 1; j <= i; j++ {
+		y := s.yAt(j)
+		if y < s.ext {
+			s.ext, s.iExt = y, j
+		}
+		if y < s.mark-s.sigma {
+			s.mark, s.iMark = y, j
+		}
+	}
+	s.setTimeout()
+}
+
+func (s *Segmenter) beginRise(k, i int) {
+	s.state, s.knee = stRise, k
+	s.ext, s.iExt = s.yAt(k), k
+	s.mark, s.iMark = s.yAt(k), k
+	for j := k + 1; j <= i; j++ {
+		y := s.yAt(j)
+		if y > s.ext {
+			s.ext, s.iExt = y, j
+		}
+		if y > s.mark+s.sigma {
+			s.mark, s.iMark = y, j
+		}
+	}
+	s.setTimeout()
+}
+
+// setTimeout sets the stall time after the last mark:
+// clamp(max(elapsed/4, 4 σ/rate, 5 samples, 2 min), stall cap).
+func (s *Segmenter) setTimeout() {
+	el := s.tAt(s.iMark) - s.tAt(s.knee)
+	to := max(el/4, int64(120e9))
+	if n := s.iMark - s.knee; n > 0 {
+		to = max(to, 5*(el/int64(n)))
+		if d := math.Abs(s.yAt(s.knee) - s.yAt(s.iMark)); d > 0 {
+			r := d / (float64(el) * 1e-9) // m/s
+			if x := 4 * s.sigma / r * 1e9; x < float64(s.stallNs) {
+				to = max(to, int64(x))
+			} else {
+				to = s.stallNs
+			}
+		}
+	}
+	s.timeoutNs = min(to, s.stallNs)
+}
+
+func (s *Segmenter) toQuiet(f, i int) {
+	s.state, s.stateStart, s.idleStart = stQuiet, f, f
+	s.maxdq.reset()
+	s.mindq.reset()
+	s.cutAt = math.MaxInt64
+	if f > i {
+		return
+	}
+	s.setCut()
+	lo := s.tAt(i) - s.winNs
+	for j := f; j <= i; j++ {
+		if s.tAt(j) < lo {
+			continue
+		}
+		y := s.yAt(j)
+		for s.maxdq.n() > 0 && s.yAt(s.maxdq.back()) <= y {
+			s.maxdq.popBack()
+		}
+		s.maxdq.pushBack(j)
+		for s.mindq.n() > 0 && s.yAt(s.mindq.back()) >= y {
+			s.mindq.popBack()
+		}
+		s.mindq.pushBack(j)
+	}
+}
+
+// breakAt ends whatever was under way before a long gap at sample i.
+func (s *Segmenter) breakAt(i int) {
+	switch s.state {
+	case stFall:
+		s.finishDrain(s.knee, s.iMark, i-1)
+	case stRise:
+		s.finishFill(s.knee, s.iMark)
+	default:
+		s.endIdle(i - 1)
+	}
+	s.toQuiet(i, i-1)
+}
+
+func (s *Segmenter) endIdle(b int) {
+	a := s.idleStart
+	if b < a || a < s.base {
+		return
+	}
+	if s.tAt(b)-s.tAt(a) < s.minIdle {
+		return
+	}
+	g := Segment{Tank: s.id, Kind: Idle, RawStartNs: s.tAt(a), RawEndNs: s.tAt(b), EmptyHeadM: math.NaN()}
+	s.fillSamples(&g, a, b)
+	s.queue = append(s.queue, g)
+}
+
+// fillSamples copies the non-spike samples of [a, b] into g and counts
+// spikes and gaps.
+func (s *Segmenter) fillSamples(g *Segment, a, b int) {
+	n, sp, gaps := 0, 0, 0
+	for j := a; j <= b; j++ {
+		if s.hist[j-s.base].k {
+			sp++
+		} else {
+			n++
+		}
+		if j > a && s.tAt(j)-s.tAt(j-1) > s.gapNs {
+			gaps++
+		}
+	}
+	g.TimeNs = make([]int64, 0, n)
+	g.HeadM = make([]float64, 0, n)
+	if s.metered {
+		g.InflowM3s = make([]float64, 0, n)
+	}
+	for j := a; j <= b; j++ {
+		x := j - s.base
+		if s.hist[x].k {
+			continue
+		}
+		g.TimeNs = append(g.TimeNs, s.hist[x].t)
+		g.HeadM = append(g.HeadM, s.hist[x].r)
+		if s.metered {
+			g.InflowM3s = append(g.InflowM3s, s.hist[x].q)
+		}
+	}
+	g.Spikes, g.GapCount = sp, gaps
+}
+
+func (s *Segmenter) finishFill(k, e int) {
+	if e <= k {
+		return
+	}
+	if s.tAt(e)-s.tAt(k) < s.minDurNs || s.yAt(e)-s.yAt(k) < s.minDrop() {
+		return
+	}
+	sp, gaps := 0, 0
+	for j := k; j <= e; j++ {
+		if s.hist[j-s.base].k {
+			sp++
+		}
+		if j > k && s.tAt(j)-s.tAt(j-1) > s.gapNs {
+			gaps++
+		}
+	}
+	s.queue = append(s.queue, Segment{
+		Tank: s.id, Kind: Fill,
+		TimeNs:     []int64{s.tAt(k), s.tAt(e)},
+		HeadM:      []float64{s.yAt(k), s.yAt(e)},
+		RawStartNs: s.tAt(k), RawEndNs: s.tAt(e),
+		EmptyHeadM: math.NaN(), Spikes: sp, GapCount: gaps,
+	})
+}
+
+func (s *Segmenter) minDrop() float64 {
+	if s.opt.MinDropM > 0 {
+		return s.opt.MinDropM
+	}
+	return max(0.05, 20*s.sigma)
+}
+
+// finishDrain judges the fall from knee k to the last mark e, with the
+// plateau (e, d] after it.
+func (s *Segmenter) finishDrain(k, e, d int) {
+	if e <= k {
+		s.stats.RejectedSmall++
+		return
+	}
+	tk := s.tAt(k)
+	drop := s.yAt(k) - s.yAt(e)
+	if s.tAt(e)-tk < s.minDurNs || drop < s.minDrop() {
+		s.stats.RejectedSmall++
+		return
+	}
+	// plateau median
+	p := math.NaN()
+	s.scratch = s.scratch[:0]
+	for j := e + 1; j <= d; j++ {
+		if !s.hist[j-s.base].k {
+			s.scratch = append(s.scratch, s.hist[j-s.base].r)
+		}
+	}
+	if len(s.scratch) >= 3 {
+		p = median(s.scratch)
+		// the fall ends where the level comes within kneeSigmas σ of the plateau
+		for e > k+1 && s.yAt(e) < p+kneeSigmas*s.sigma {
+			e--
+		}
+	}
+	tol := s.opt.EmptyHeadM
+	if !(tol > 0) {
+		tol = max(5*s.sigma, 0.01*drop)
+	}
+	a := k
+	for a < e && s.tAt(a)-tk < s.transNs {
+		a++
+	}
+	b := e
+	complete := false
+	if !math.IsNaN(p) {
+		bc := b
+		for bc > a && s.yAt(bc) < p+tol {
+			bc--
+		}
+		if math.Abs(p) <= tol {
+			complete = true
+		} else {
+			rc := s.kRatio(a, bc, p)
+			r0 := s.kRatio(a, b, 0)
+			lc, l0 := math.Abs(math.Log(rc)), math.Abs(math.Log(r0))
+			complete = lc < l0 || (math.IsNaN(l0) && !math.IsNaN(lc))
+		}
+		if complete {
+			b = bc
+		}
+	}
+	kept := 0
+	for j := a; j <= b; j++ {
+		if !s.hist[j-s.base].k {
+			kept++
+		}
+	}
+	if kept < minDrainSamples {
+		s.stats.RejectedSmall++
+		return
+	}
+	datum := 0.0
+	if complete {
+		datum = p
+	}
+	r := s.kRatio(a, b, datum)
+	if !(r >= ratioLo && r <= ratioHi) {
+		s.stats.RejectedInflow++
+		return
+	}
+	g := Segment{Tank: s.id, Kind: Drain, RawStartNs: tk, RawEndNs: s.tAt(e), Complete: complete, EmptyHeadM: math.NaN()}
+	if complete {
+		g.EmptyHeadM = p
+	}
+	s.fillSamples(&g, a, b)
+	// spikes and gaps over the whole fall, not only the kept part
+	sp, gaps := 0, 0
+	for j := k; j <= e; j++ {
+		if s.hist[j-s.base].k {
+			sp++
+		}
+		if j > k && s.tAt(j)-s.tAt(j-1) > s.gapNs {
+			gaps++
+		}
+	}
+	g.Spikes, g.GapCount = sp, gaps
+	s.queue = append(s.queue, g)
+}
+
+// kRatio is K over the second half of [a, b] divided by K over the first,
+// each from the mass balance K = (V(h_i) - V(h_j) + ∫q dt) / ∫sqrt(h - datum) dt
+// on the median-of-5 level. NaN when a half is too short.
+func (s *Segmenter) kRatio(a, b int, datum float64) float64 {
+	if b-a < 4 {
+		return math.NaN()
+	}
+	tm := s.tAt(a) + (s.tAt(b)-s.tAt(a))/2
+	m := a + 1
+	for m < b-1 && s.tAt(m) < tm {
+		m++
+	}
+	k1 := s.massK(a, m, datum)
+	k2 := s.massK(m, b, datum)
+	return k2 / k1
+}
+
+func (s *Segmenter) massK(i, j int, datum float64) float64 {
+	num := s.volAt(s.yAt(i)-datum) - s.volAt(s.yAt(j)-datum)
+	den := 0.0
+	r0 := math.Sqrt(max(s.yAt(i)-datum, 0))
+	for x := i + 1; x <= j; x++ {
+		r1 := math.Sqrt(max(s.yAt(x)-datum, 0))
+		dt := float64(s.tAt(x)-s.tAt(x-1)) * 1e-9
+		den += 0.5 * (r0 + r1) * dt
+		if s.metered {
+			q0, q1 := s.hist[x-1-s.base].q, s.hist[x-s.base].q
+			if q0 > 0 || q1 > 0 {
+				num += 0.5 * (max(q0, 0) + max(q1, 0)) * dt
+			}
+		}
+		r0 = r1
+	}
+	return num / den
+}
+
+// volAt is the volume above the outlet at head h (m^3).
+func (s *Segmenter) volAt(h float64) float64 {
+	if s.tank == nil || s.tank.Shape == nil {
+		return h
+	}
+	e := s.tank.OutletElevM
+	return s.tank.Shape.VolumeM3(h+e) - s.tank.Shape.VolumeM3(e)
+}
