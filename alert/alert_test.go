@@ -1,0 +1,145 @@
+package alert
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"flag"
+	"net/http"
+	"net/http/httptest"
+	"os"
+	"path/filepath"
+	"strings"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"drainsight/detect"
+)
+
+var update = flag.Bool("update", false, "rewrite golden files")
+
+var t0 = time.Date(2026, 3, 2, 6, 0, 0, 0, time.UTC)
+
+func finding(tank, kind, sub string, mag float64) detect.Finding {
+	return detect.Finding{Tank: tank, Kind: kind, Subtype: sub, MagnitudePct: mag,
+		Onset: t0.Add(-72 * time.Hour), Statistic: "cusum", Evidence: "K " + kind}
+}
+
+func statuses(evs []Event) string {
+	var parts []string
+	for _, e := range evs {
+		parts = append(parts, Key(e.Finding)+"="+string(e.Status))
+	}
+	return strings.Join(parts, " ")
+}
+
+func TestTrackerLifecycle(t *testing.T) {
+	restr := finding("T1", "restriction", "gradual", -22)
+	leak := finding("T2", "tank_leak", "", 0)
+	steps := []struct {
+		name      string
+		evaluated []string
+		findings  []detect.Finding
+		want      string
+		notify    int
+	}{
+		{"first sight is new", []string{"T1", "T2"}, []detect.Finding{restr}, "T1|restriction|gradual=new", 1},
+		{"same data again is not re-notified", []string{"T1", "T2"}, []detect.Finding{restr}, "T1|restriction|gradual=ongoing", 0},
+		{"a second tank joins", []string{"T1", "T2"}, []detect.Finding{restr, leak}, "T1|restriction|gradual=ongoing T2|tank_leak|=new", 1},
+		{"tank not evaluated keeps its finding", []string{"T1"}, []detect.Finding{restr}, "T1|restriction|gradual=ongoing", 0},
+		{"cleared when absent", []string{"T1", "T2"}, []detect.Finding{restr}, "T1|restriction|gradual=ongoing T2|tank_leak|=cleared", 1},
+		{"cleared record dropped, comes back new", []string{"T1", "T2"}, []detect.Finding{restr, leak}, "T1|restriction|gradual=ongoing T2|tank_leak|=new", 1},
+	}
+	tr := NewTracker(nil)
+	for i, st := range steps {
+		// Persist and restore between steps, as the run loop does.
+		tr = NewTracker(tr.Records())
+		evs := tr.Update(t0.Add(time.Duration(i)*time.Hour), st.evaluated, st.findings)
+		if got := statuses(evs); got != st.want {
+			t.Errorf("%s: got %q, want %q", st.name, got, st.want)
+		}
+		if got := len(Notifiable(evs)); got != st.notify {
+			t.Errorf("%s: %d notifiable, want %d", st.name, got, st.notify)
+		}
+	}
+}
+
+func TestTrackerRecordsRoundTripJSON(t *testing.T) {
+	tr := NewTracker(nil)
+	tr.Update(t0, []string{"T1"}, []detect.Finding{finding("T1", "restriction", "abrupt", -35)})
+	buf, err := json.Marshal(tr.Records())
+	if err != nil {
+		t.Fatal(err)
+	}
+	var back []Record
+	if err := json.Unmarshal(buf, &back); err != nil {
+		t.Fatal(err)
+	}
+	evs := NewTracker(back).Update(t0.Add(time.Hour), []string{"T1"}, []detect.Finding{finding("T1", "restriction", "abrupt", -35)})
+	if got, want := statuses(evs), "T1|restriction|abrupt=ongoing"; got != want {
+		t.Errorf("after JSON round trip: got %q, want %q", got, want)
+	}
+}
+
+func TestWriteTableGolden(t *testing.T) {
+	evs := []Event{
+		{Status: StatusNew, At: t0, Finding: finding("sludge-2", "restriction", "abrupt", -34.6)},
+		{Status: StatusOngoing, At: t0, Finding: finding("sump-1", "sensor_fault", "drift", 0)},
+		{Status: StatusCleared, At: t0, Finding: finding("wash-1", "excess_outflow", "", 12.25)},
+	}
+	var buf bytes.Buffer
+	if err := WriteTable(&buf, evs); err != nil {
+		t.Fatal(err)
+	}
+	golden := filepath.Join("testdata", "table.golden")
+	if *update {
+		if err := os.WriteFile(golden, buf.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(golden)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := buf.String(); got != string(want) {
+		t.Errorf("table differs from %s (run with -update to accept):\n got:\n%s\nwant:\n%s", golden, got, want)
+	}
+}
+
+func TestWebhookRetriesAndHidesURL(t *testing.T) {
+	var calls atomic.Int32
+	var got webhookBody
+	srv := httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		if calls.Add(1) == 1 {
+			w.WriteHeader(http.StatusServiceUnavailable)
+			return
+		}
+		if err := json.NewDecoder(r.Body).Decode(&got); err != nil {
+			t.Errorf("decode: %v", err)
+		}
+	}))
+	defer srv.Close()
+	n := WebhookNotifier{URL: srv.URL + "/hook?key=s3cret"}
+	evs := []Event{{Status: StatusNew, At: t0, Finding: finding("T1", "restriction", "gradual", -20)}}
+	if err := n.Notify(context.Background(), evs); err != nil {
+		t.Fatalf("Notify: %v", err)
+	}
+	if calls.Load() != 2 {
+		t.Errorf("calls = %d, want 2 (one 503 then success)", calls.Load())
+	}
+	if len(got.Events) != 1 || got.Events[0].Kind != "restriction" || got.Caution == "" {
+		t.Errorf("payload = %+v", got)
+	}
+
+	bad := WebhookNotifier{URL: srv.URL + "/hook?key=s3cret"}
+	srv2 := httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		w.WriteHeader(http.StatusForbidden)
+	}))
+	defer srv2.Close()
+	bad.URL = srv2.URL + "/hook?key=s3cret"
+	err := bad.Notify(context.Background(), evs)
+	if err == nil || strings.Contains(err.Error(), "s3cret") {
+		t.Errorf("error %v: want an error without the secret", err)
+	}
+}

@@ -1,0 +1,126 @@
+package alert
+
+import (
+	"cmp"
+	"slices"
+	"time"
+
+	"drainsight/detect"
+)
+
+// Status is where a finding is in its life.
+type Status string
+
+const (
+	// StatusNew: first seen in this evaluation; notified.
+	StatusNew Status = "new"
+	// StatusOngoing: seen before and still present; not notified again.
+	StatusOngoing Status = "ongoing"
+	// StatusCleared: present before, absent in this evaluation of its tank; notified.
+	StatusCleared Status = "cleared"
+)
+
+// Record is one finding's life, persisted between runs (JSON).
+type Record struct {
+	Key       string         `json:"key"`
+	Status    Status         `json:"status"`
+	FirstSeen time.Time      `json:"first_seen"`
+	LastSeen  time.Time      `json:"last_seen"`
+	ClearedAt time.Time      `json:"cleared_at,omitzero"`
+	Finding   detect.Finding `json:"finding"`
+}
+
+// Event is a transition worth telling someone about, or an ongoing finding
+// (Status tells which). Notifiers send only new and cleared events.
+type Event struct {
+	Status  Status
+	At      time.Time
+	Finding detect.Finding
+}
+
+// Key identifies a finding across runs: one per tank, kind and subtype.
+func Key(f detect.Finding) string { return f.Tank + "|" + f.Kind + "|" + f.Subtype }
+
+// Tracker holds the lifecycle of every finding. It is not safe for
+// concurrent use; the run loop owns one and persists its Records.
+type Tracker struct {
+	recs map[string]*Record
+}
+
+// NewTracker restores a tracker from persisted records.
+func NewTracker(prev []Record) *Tracker {
+	t := &Tracker{recs: make(map[string]*Record, len(prev))}
+	for _, r := range prev {
+		r := r
+		t.recs[r.Key] = &r
+	}
+	return t
+}
+
+// Update applies one evaluation at now. evaluated lists the tanks whose
+// findings were evaluated (a tank that failed to load keeps its findings
+// untouched); findings are the active findings of those tanks. It returns the
+// events of this evaluation sorted by tank, kind and subtype: new and cleared
+// transitions and ongoing findings. Cleared records are dropped on the next
+// Update, so a finding that comes back is new again.
+func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Finding) []Event {
+	inScope := make(map[string]bool, len(evaluated))
+	for _, tank := range evaluated {
+		inScope[tank] = true
+	}
+	seen := make(map[string]bool, len(findings))
+	var evs []Event
+	for _, f := range findings {
+		k := Key(f)
+		if seen[k] {
+			continue
+		}
+		seen[k] = true
+		r, ok := t.recs[k]
+		if !ok || r.Status == StatusCleared {
+			r = &Record{Key: k, Status: StatusNew, FirstSeen: now}
+			t.recs[k] = r
+		} else {
+			r.Status = StatusOngoing
+		}
+		r.LastSeen, r.Finding = now, f
+		evs = append(evs, Event{Status: r.Status, At: now, Finding: f})
+	}
+	for k, r := range t.recs {
+		if seen[k] || !inScope[r.Finding.Tank] {
+			continue
+		}
+		if r.Status == StatusCleared {
+			delete(t.recs, k)
+			continue
+		}
+		r.Status, r.ClearedAt = StatusCleared, now
+		evs = append(evs, Event{Status: StatusCleared, At: now, Finding: r.Finding})
+	}
+	slices.SortFunc(evs, func(a, b Event) int {
+		return cmp.Or(cmp.Compare(a.Finding.Tank, b.Finding.Tank),
+			cmp.Compare(a.Finding.Kind, b.Finding.Kind), cmp.Compare(a.Finding.Subtype, b.Finding.Subtype))
+	})
+	return evs
+}
+
+// Records returns the persisted form, sorted by key.
+func (t *Tracker) Records() []Record {
+	out := make([]Record, 0, len(t.recs))
+	for _, r := range t.recs {
+		out = append(out, *r)
+	}
+	slices.SortFunc(out, func(a, b Record) int { return cmp.Compare(a.Key, b.Key) })
+	return out
+}
+
+// Active returns the findings that are new or ongoing, sorted by key.
+func (t *Tracker) Active() []Record {
+	var out []Record
+	for _, r := range t.Records() {
+		if r.Status != StatusCleared {
+			out = append(out, r)
+		}
+	}
+	return out
+}

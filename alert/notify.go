@@ -1,0 +1,180 @@
+package alert
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"math"
+	"net/http"
+	"net/url"
+	"strings"
+	"text/tabwriter"
+	"time"
+)
+
+// Notifier sends the new and cleared events of one evaluation.
+type Notifier interface {
+	Notify(ctx context.Context, evs []Event) error
+}
+
+// Notifiable returns the events that notifiers send: new and cleared ones.
+func Notifiable(evs []Event) []Event {
+	var out []Event
+	for _, e := range evs {
+		if e.Status == StatusNew || e.Status == StatusCleared {
+			out = append(out, e)
+		}
+	}
+	return out
+}
+
+// LogNotifier writes each event as one structured log line. Restrictions,
+// excess outflow and tank leaks are logged at warn level, sensor faults at
+// info level, cleared findings at info level.
+type LogNotifier struct{ Logger *slog.Logger }
+
+// Notify implements Notifier.
+func (n LogNotifier) Notify(ctx context.Context, evs []Event) error {
+	for _, e := range evs {
+		f := e.Finding
+		lvl := slog.LevelWarn
+		if e.Status == StatusCleared || f.Kind == "sensor_fault" {
+			lvl = slog.LevelInfo
+		}
+		n.Logger.Log(ctx, lvl, "finding",
+			"status", string(e.Status), "tank", f.Tank, "kind", f.Kind, "subtype", f.Subtype,
+			"magnitude_pct", round(f.MagnitudePct, 1), "onset", f.Onset.Format(time.RFC3339),
+			"statistic", f.Statistic, "evidence", f.Evidence)
+	}
+	return nil
+}
+
+// WebhookNotifier posts each batch of events as one JSON document to URL.
+// It retries transport errors, 429 and 5xx up to three times with backoff.
+// The URL may hold a secret: it is never logged and errors show only its host.
+type WebhookNotifier struct {
+	URL    string
+	Client *http.Client // nil means a client with a 10 s timeout
+}
+
+// webhookBody is the documented webhook payload (see README).
+type webhookBody struct {
+	Source  string         `json:"source"`
+	Caution string         `json:"caution"`
+	Events  []webhookEvent `json:"events"`
+}
+
+type webhookEvent struct {
+	Status       string    `json:"status"`
+	At           time.Time `json:"at"`
+	Tank         string    `json:"tank"`
+	Kind         string    `json:"kind"`
+	Subtype      string    `json:"subtype,omitempty"`
+	Onset        time.Time `json:"onset"`
+	MagnitudePct float64   `json:"magnitude_pct"`
+	Evidence     string    `json:"evidence"`
+}
+
+// Notify implements Notifier.
+func (n WebhookNotifier) Notify(ctx context.Context, evs []Event) error {
+	if len(evs) == 0 {
+		return nil
+	}
+	body := webhookBody{Source: "drainsight", Caution: Caution}
+	for _, e := range evs {
+		f := e.Finding
+		body.Events = append(body.Events, webhookEvent{Status: string(e.Status), At: e.At, Tank: f.Tank,
+			Kind: f.Kind, Subtype: f.Subtype, Onset: f.Onset, MagnitudePct: round(f.MagnitudePct, 2), Evidence: f.Evidence})
+	}
+	buf, err := json.Marshal(body)
+	if err != nil {
+		return fmt.Errorf("alert: webhook: %w", err)
+	}
+	client := n.Client
+	if client == nil {
+		client = &http.Client{Timeout: 10 * time.Second}
+	}
+	host := "webhook"
+	if u, err := url.Parse(n.URL); err == nil {
+		host = u.Host
+	}
+	var last error
+	for attempt := range 4 {
+		if attempt > 0 {
+			select {
+			case <-ctx.Done():
+				return fmt.Errorf("alert: webhook %s: %w", host, ctx.Err())
+			case <-time.After(time.Duration(1<<attempt) * 250 * time.Millisecond):
+			}
+		}
+		req, err := http.NewRequestWithContext(ctx, http.MethodPost, n.URL, bytes.NewReader(buf))
+		if err != nil {
+			return fmt.Errorf("alert: webhook: bad url (setting outputs.webhook_url)")
+		}
+		req.Header.Set("Content-Type", "application/json")
+		resp, err := client.Do(req)
+		if err != nil {
+			var ue *url.Error
+			if errors.As(err, &ue) {
+				err = ue.Err // the url may hold a secret
+			}
+			last = fmt.Errorf("alert: webhook %s: %w", host, err)
+			continue
+		}
+		io.Copy(io.Discard, io.LimitReader(resp.Body, 1<<16))
+		resp.Body.Close()
+		switch {
+		case resp.StatusCode < 300:
+			return nil
+		case resp.StatusCode == 429 || resp.StatusCode >= 500:
+			last = fmt.Errorf("alert: webhook %s: status %d", host, resp.StatusCode)
+			continue
+		default:
+			return fmt.Errorf("alert: webhook %s: status %d (check outputs.webhook_url)", host, resp.StatusCode)
+		}
+	}
+	return last
+}
+
+// WriteTable prints events as an aligned table for people.
+func WriteTable(w io.Writer, evs []Event) error {
+	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "TANK\tFINDING\tSTATUS\tCHANGE\tONSET\tEVIDENCE")
+	for _, e := range evs {
+		f := e.Finding
+		kind := f.Kind
+		if f.Subtype != "" {
+			kind += "/" + f.Subtype
+		}
+		change := "-"
+		if !math.IsNaN(f.MagnitudePct) && f.MagnitudePct != 0 {
+			change = fmt.Sprintf("%+.1f %%", f.MagnitudePct)
+		}
+		onset := "-"
+		if !f.Onset.IsZero() {
+			onset = f.Onset.UTC().Format("2006-01-02")
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", f.Tank, kind, e.Status, change, onset, oneLine(f.Evidence, 90))
+	}
+	return tw.Flush()
+}
+
+func oneLine(s string, max int) string {
+	s = strings.Join(strings.Fields(s), " ")
+	if r := []rune(s); len(r) > max {
+		return string(r[:max-1]) + "…"
+	}
+	return s
+}
+
+func round(x float64, digits int) float64 {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return 0
+	}
+	p := math.Pow(10, float64(digits))
+	return math.Round(x*p) / p
+}
