@@ -1,0 +1,211 @@
+package config
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"strings"
+	"time"
+)
+
+// Config is a loaded, validated configuration. Every quantity is SI; every
+// relative path is already resolved against the directory of the file.
+type Config struct {
+	File    string // the file it was read from (the name given to Parse)
+	Sites   []Site
+	Tanks   []Tank
+	Outputs Outputs
+}
+
+// Site groups tanks and may name an InfluxDB server.
+type Site struct {
+	ID          string
+	Description string
+	Influx      *Influx // nil when the site has no InfluxDB
+}
+
+// Influx is a site's InfluxDB connection. The token is never in the file:
+// it comes from the environment variable TokenEnv or the file TokenFile (at
+// most one of them; neither for a server without authentication).
+type Influx struct {
+	URL                 string
+	Org                 string        // default "" (ignored by InfluxDB 1.8)
+	Bucket              string        // required; "db/rp" or "db" on 1.8
+	TokenEnv            string        // name of an environment variable holding the token
+	TokenFile           string        // path of a file holding the token
+	Measurement         string        // default "tank_level"
+	Field               string        // default "level"
+	TankTag             string        // default "tank"
+	SiteTag             string        // default "site"
+	QueryWindow         time.Duration // default 24 h: the time span of one query
+	Timeout             time.Duration // default 30 s: per query or write
+	FitsMeasurement     string        // default "outlet_fit": write-back of drain fits
+	FindingsMeasurement string        // default "outlet_finding": write-back of findings
+	SettleDelay         time.Duration // default 5 min: data younger than this is not read yet
+	Overlap             time.Duration // default 1 h: each scan re-reads this much before the last point
+}
+
+// Token returns the token from TokenEnv or TokenFile (surrounding white space
+// removed), or "" when neither is set. The token is a secret: never log it.
+func (i *Influx) Token() (string, error) {
+	switch {
+	case i.TokenEnv != "":
+		t, ok := os.LookupEnv(i.TokenEnv)
+		if !ok {
+			return "", fmt.Errorf("config: influx token: environment variable %s is not set", i.TokenEnv)
+		}
+		return strings.TrimSpace(t), nil
+	case i.TokenFile != "":
+		b, err := os.ReadFile(i.TokenFile)
+		if err != nil {
+			var pe *os.PathError
+			if errors.As(err, &pe) {
+				err = pe.Err // the error text never contains file content
+			}
+			return "", fmt.Errorf("config: influx token file %s: %w", i.TokenFile, err)
+		}
+		return strings.TrimSpace(string(b)), nil
+	}
+	return "", nil
+}
+
+// Shape names a vessel geometry.
+type Shape string
+
+// The shapes and the dimensions each needs (all measured inside).
+const (
+	VerticalCylinder   Shape = "vertical_cylinder"    // diameter, height
+	Rectangular        Shape = "rectangular"          // length, width, height
+	HorizontalCylinder Shape = "horizontal_cylinder"  // diameter, length (height = diameter)
+	Sphere             Shape = "sphere"               // diameter (height = diameter)
+	ConeBottomCylinder Shape = "cone_bottom_cylinder" // diameter, height (total), cone_height
+	StrappingTable     Shape = "strapping_table"      // points or file (height = last level)
+)
+
+// Geometry is a vessel's shape and internal dimensions, m. Dimensions the
+// shape does not use are 0.
+type Geometry struct {
+	Shape       Shape
+	DiameterM   float64
+	LengthM     float64
+	WidthM      float64
+	HeightM     float64 // internal height; derived for horizontal_cylinder, sphere and strapping_table
+	ConeHeightM float64
+	Strapping   []StrappingPoint // strapping_table only, levels strictly increasing
+}
+
+// StrappingPoint is one row of a strapping table: the volume below a level.
+type StrappingPoint struct {
+	LevelM   float64
+	VolumeM3 float64
+}
+
+// Outlet describes the drain outlet.
+type Outlet struct {
+	DiameterM  float64 // bore, m; 0 when unknown
+	ElevationM float64 // above the vessel bottom, m; 0 when unknown
+	// ElevationKnown is false when the file says "unknown": the datum is then
+	// estimated per drain.
+	ElevationKnown bool
+	DesignCd       float64 // design discharge coefficient; 0 when not given
+}
+
+// SensorKind is "depth" or "pressure".
+type SensorKind string
+
+const (
+	Depth    SensorKind = "depth"
+	Pressure SensorKind = "pressure"
+)
+
+// Sensor describes the level instrument. Readings convert to level as
+// documented in package ingest (Sensor).
+type Sensor struct {
+	Kind SensorKind
+	Unit string // as written: m, cm, mm, ft, in, percent; Pa, hPa, kPa, MPa, mbar, bar, psi, mH2O, cmH2O, mmH2O
+	// UnitToSI is metres (depth) or pascals (pressure) per reading unit; 0
+	// for percent, where SpanM applies.
+	UnitToSI    float64
+	SpanM       float64 // percent only: the level at 100 %, m
+	ZeroOffset  float64 // reading at zero level, in the sensor's unit; default 0
+	DensityKgM3 float64 // default 998.2067 (water at 20 °C); used by pressure sensors
+	Inflow      *InflowMeter
+}
+
+// InflowMeter is an optional meter of the flow into the tank.
+type InflowMeter struct {
+	Unit  string  // as written: m3/s, m3/min, m3/h, L/s, L/min, L/h
+	ToSI  float64 // m^3/s per reading unit
+	Field string  // line protocol / InfluxDB field; default "inflow"
+}
+
+// Source says where a tank's level history comes from.
+type Source struct {
+	Format      string   // "csv", "line_protocol" or "influx"
+	Paths       []string // file globs (csv, line_protocol), resolved against the config's directory
+	Measurement string   // line protocol measurement; default "tank_level" ("" in the file means the default)
+	Field       string   // line protocol field; default "level"
+	TankTag     string   // line protocol tag; default "tank"
+	Precision   string   // numeric time unit: auto (default), s, ms, us, ns
+}
+
+// Detection tunes drain cutting and change detection for one tank.
+type Detection struct {
+	BaselineDrains      int           // default 10: good drains that form the baseline
+	DesignKM25s         float64       // design outlet constant, m^2.5/s; 0 when not given
+	FalseAlarmInterval  time.Duration // default 5 y: mean time between false alarms per tank and detector
+	CusumK              float64       // default 0.5: CUSUM reference value, in standard deviations
+	EWMALambda          float64       // default 0.2: EWMA weight of the newest drain
+	MaintenanceFraction float64       // default 0.8: K below this fraction of baseline is due for maintenance
+	MinDropM            float64       // default 0.05 m: smallest level fall that counts as a drain
+	MinDrainDuration    time.Duration // default 2 min: shortest drain that is fitted
+	Transient           time.Duration // default 30 s: trimmed after the outlet opens
+	Settle              time.Duration // default 5 min: flat time before an idle period counts
+	GapLimit            time.Duration // default 5 min: longer gaps between samples split or flag a segment
+}
+
+// Tank is one monitored tank, with the defaults block applied.
+type Tank struct {
+	ID          string
+	Site        string
+	Description string
+	Geometry    Geometry
+	Outlet      Outlet
+	Sensor      Sensor
+	Source      Source
+	Detection   Detection
+}
+
+// Outputs says where results go.
+type Outputs struct {
+	Directory    string // default "out", relative to the config file
+	Report       ReportSettings
+	Alert        AlertSettings
+	StateFile    string // bbolt file; default Directory/state.db
+	ScanSchedule string // cron spec (5 fields or @descriptor); default "*/15 * * * *"
+}
+
+// ReportSettings schedule the weekly report.
+type ReportSettings struct {
+	Schedule string         // cron spec; default "0 6 * * 1" (Monday 06:00)
+	TimeZone string         // IANA name; default "UTC"
+	Location *time.Location // TimeZone loaded
+}
+
+// AlertSettings choose the notifiers.
+type AlertSettings struct {
+	Log           bool     // default true: alerts go to the log
+	WebhookURL    string   // optional; a secret in many services: never log it
+	WebhookURLEnv string   // optional: environment variable holding the webhook URL
+	Command       []string // optional argv run per alert (no shell)
+}
+
+// Site returns the site with the given id, or nil.
+func (c *Config) Site(id string) *Site {
+	for i := range c.Sites {
+		if c.Sites[i].ID == id {
+			return &c.Sites[i]
+		}
+	}
+	return nil
+}

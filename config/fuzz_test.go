@@ -1,0 +1,69 @@
+package config
+
+import (
+	"errors"
+	"math"
+	"os"
+	"strings"
+	"testing"
+)
+
+// FuzzParse: no input panics Parse, and every failure is either a YAML
+// syntax error or a ValidationError whose problems all carry a path and a
+// message.
+func FuzzParse(f *testing.F) {
+	for _, name := range []string{"testdata/example.yaml", "testdata/broken.yaml"} {
+		b, err := os.ReadFile(name)
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(b)
+	}
+	f.Add([]byte("tanks: [{id: a, geometry: {<<: [*x]}}]"))
+	f.Add([]byte("a: &a [*a]\ntanks: *a\n"))
+	f.Add([]byte("outputs: {scan_schedule: 'CRON_TZ=UTC', report: {schedule: 'TZ='}}\n"))
+	f.Add([]byte("defaults: &d {defaults: *d}\n"))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		c, err := Parse(data, "fuzz/plant.yaml")
+		if err == nil {
+			if c == nil || len(c.Tanks) == 0 {
+				t.Fatalf("no error but config %+v", c)
+			}
+			return
+		}
+		var ve *ValidationError
+		if !errors.As(err, &ve) {
+			if !strings.Contains(err.Error(), "yaml") {
+				t.Fatalf("error is neither yaml nor validation: %v", err)
+			}
+			return
+		}
+		if len(ve.Problems) == 0 {
+			t.Fatal("ValidationError without problems")
+		}
+		for _, p := range ve.Problems {
+			if p.Msg == "" {
+				t.Fatalf("problem without a message: %+v", p)
+			}
+		}
+	})
+}
+
+// FuzzParseQuantity: the unit parsers never panic and return finite values
+// or an error.
+func FuzzParseQuantity(f *testing.F) {
+	for _, s := range []string{"80 mm", "3.2 m", "12.5 kPa", "998.2 kg/m3", "5 min", "5 y", "1e308 km", "-0", ".5 in", "1e", "2 L/s", "0x1p3 m"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		for _, p := range []func(string) (float64, error){ParseLength, ParsePressure, ParseDensity, ParseFlow, ParseVolume, ParseOutletConstant} {
+			v, err := p(s)
+			if err == nil && (math.IsNaN(v) || math.IsInf(v, 0)) {
+				t.Fatalf("%q parsed to %v", s, v)
+			}
+		}
+		if d, err := ParseDuration(s); err == nil && strings.HasPrefix(strings.TrimSpace(s), "-") == (d > 0) && d != 0 {
+			t.Fatalf("%q parsed to %v: wrong sign", s, d)
+		}
+	})
+}
