@@ -49,15 +49,31 @@ func lpBad(kind ProblemKind, format string, a ...any) lpResult {
 	return lpResult{kind: kind, text: fmt.Sprintf(format, a...)}
 }
 
+// stopSet marks the bytes that end a line protocol token.
+type stopSet [256]bool
+
+func newStopSet(chars string) *stopSet {
+	var s stopSet
+	for i := 0; i < len(chars); i++ {
+		s[chars[i]] = true
+	}
+	return &s
+}
+
+var (
+	stopMeas = newStopSet(", ")  // measurement, tag value
+	stopKey  = newStopSet("=, ") // tag key, field key
+)
+
 // scanLP advances from i to the first unescaped byte of stops.
-func scanLP(b []byte, i int, stops string) int {
+func scanLP(b []byte, i int, stops *stopSet) int {
 	for i < len(b) {
 		c := b[i]
 		if c == '\\' {
 			i += 2
 			continue
 		}
-		if strings.IndexByte(stops, c) >= 0 {
+		if stops[c] {
 			return i
 		}
 		i++
@@ -86,7 +102,7 @@ func (p *lpParser) parse(line []byte) lpResult {
 	if len(b) == 0 || b[0] == '#' {
 		return lpResult{skip: true}
 	}
-	i := scanLP(b, 0, ", ")
+	i := scanLP(b, 0, stopMeas)
 	if i == 0 {
 		return lpBad(Malformed, "empty measurement in %s", excerpt(line))
 	}
@@ -97,14 +113,14 @@ func (p *lpParser) parse(line []byte) lpResult {
 	for i < len(b) && b[i] == ',' {
 		i++
 		ks := i
-		i = scanLP(b, i, "=, ")
+		i = scanLP(b, i, stopKey)
 		if i == ks || i >= len(b) || b[i] != '=' {
 			return lpBad(Malformed, "bad tag in %s", excerpt(line))
 		}
 		key := b[ks:i]
 		i++
 		vs := i
-		i = scanLP(b, i, ", ")
+		i = scanLP(b, i, stopMeas)
 		if i == vs {
 			return lpBad(Malformed, "empty tag value in %s", excerpt(line))
 		}
@@ -122,7 +138,7 @@ func (p *lpParser) parse(line []byte) lpResult {
 	var levelRaw, inflowRaw []byte
 	for {
 		ks := i
-		i = scanLP(b, i, "=, ")
+		i = scanLP(b, i, stopKey)
 		if i == ks || i >= len(b) || b[i] != '=' {
 			return lpBad(Malformed, "bad field in %s", excerpt(line))
 		}
