@@ -199,6 +199,11 @@ func TestStrappingFile(t *testing.T) {
 			t.Errorf("point %d = %v, want %v", i, got[i], want[i])
 		}
 	}
+	os.WriteFile(filepath.Join(dir, "down.csv"), []byte("level_m,volume_m3\n0,0\n1,2\n0.5,3\n"), 0o644)
+	_, err = Parse([]byte(strings.Replace(doc, "%s", "down.csv", 1)), filepath.Join(dir, "plant.yaml"))
+	if err == nil || !strings.Contains(err.Error(), "plant.yaml:3: tanks[0].geometry.file: down.csv:4: levels must increase strictly") {
+		t.Errorf("falling level in a file: error = %v", err)
+	}
 	for _, name := range []string{"bad.csv", "missing.csv"} {
 		_, err := Parse([]byte(strings.Replace(doc, "%s", name, 1)), filepath.Join(dir, "plant.yaml"))
 		if err == nil || !strings.Contains(err.Error(), "tanks[0].geometry.file") {

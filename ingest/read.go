@@ -293,11 +293,12 @@ type Conversion struct {
 // returns one Series of head per tank in conv. Each tank's times are strictly
 // increasing across all files: a sample not after the previous one of its
 // tank is skipped and counted, with its file and line. Samples of tanks not in
-// conv are counted as unknown_tank, unless opt.Tanks says otherwise.
+// conv (or, when opt.Tanks is set, not in both) are counted as unknown_tank.
 //
 // With opt.InflowField set, tanks whose Conversion has InflowToSI > 0 get
 // InflowM3s by sample-and-hold of the meter's readings; samples before the
-// meter's first reading get NaN. Tanks without readings get no Series.
+// meter's first reading get NaN. ReadSeries sets opt.OnInflow itself. Tanks
+// without level readings get no Series.
 //
 // An error is returned for a pattern that matches no file, an invalid
 // Conversion, or any error of ReadFile; the Report holds what was read so far.
@@ -315,12 +316,13 @@ func ReadSeries(ctx context.Context, patterns []string, format Format, opt ReadO
 	if err != nil {
 		return nil, rep, err
 	}
-	if opt.Tanks == nil {
-		opt.Tanks = make(map[string]bool, len(conv))
-		for tank := range conv {
-			opt.Tanks[tank] = true
+	known := make(map[string]bool, len(conv))
+	for tank := range conv {
+		if opt.Tanks == nil || opt.Tanks[tank] {
+			known[tank] = true
 		}
 	}
+	opt.Tanks = known
 	flows := map[string]*meterReadings{}
 	if opt.InflowField != "" {
 		opt.OnInflow = func(tank string, tNs int64, v float64) {
