@@ -64,14 +64,36 @@ func solveIMinusP(p []float64, n int) (v []float64, ok bool) {
 }
 
 // bisect finds x in [lo, hi] with f(x) = 0 for an increasing f, to a relative
-// tolerance tol. It assumes f(lo) < 0 < f(hi).
+// tolerance tol, by the Illinois variant of regula falsi (bracketing, so it
+// cannot fail, and superlinear on the smooth log-ARL curves used here). It
+// assumes f(lo) < 0 < f(hi).
 func bisect(f func(float64) float64, lo, hi, tol float64) float64 {
+	flo, fhi := f(lo), f(hi)
+	side := 0
 	for i := 0; i < 200 && hi-lo > tol*math.Max(1, math.Abs(hi)); i++ {
-		mid := 0.5 * (lo + hi)
-		if f(mid) < 0 {
-			lo = mid
-		} else {
-			hi = mid
+		x := (lo*fhi - hi*flo) / (fhi - flo)
+		if !(x > lo && x < hi) {
+			x = 0.5 * (lo + hi)
+		}
+		fx := f(x)
+		switch {
+		case fx == 0:
+			return x
+		case fx < 0:
+			lo, flo = x, fx
+			if side == -1 {
+				fhi /= 2
+			}
+			side = -1
+		default:
+			hi, fhi = x, fx
+			if side == 1 {
+				flo /= 2
+			}
+			side = 1
+		}
+		if math.Abs(fx) < 1e-13 {
+			return x
 		}
 	}
 	return 0.5 * (lo + hi)

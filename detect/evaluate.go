@@ -1,0 +1,535 @@
+package detect
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"time"
+
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+// Finding kinds and subtypes.
+const (
+	KindRestriction   = "restriction"
+	KindExcessOutflow = "excess_outflow"
+	KindTankLeak      = "tank_leak"
+	KindSensorFault   = "sensor_fault"
+
+	SubGradual = "gradual"
+	SubAbrupt  = "abrupt"
+	SubStuck   = "stuck"
+	SubSpikes  = "spikes"
+	SubNoise   = "noise"
+	SubDrift   = "drift"
+	SubGap     = "gap"
+	SubStale   = "stale"
+)
+
+// Finding is one active condition on a tank.
+//
+// DetectedAt is the evaluation time; Onset with [OnsetLo, OnsetHi] the
+// estimated start (change point with its profile-likelihood interval; zero
+// when not estimated). MagnitudePct is the change of K in percent of the
+// baseline (negative for a restriction). Statistic names the test that
+// fired, Value its current value and Threshold its limit; PValue is the
+// chance that a healthy tank shows evidence this strong within the data
+// seen (see each detector in the package doc); FalseAlarmYears is the design
+// false-alarm interval of the detector. Evidence is one human sentence with
+// the numbers.
+type Finding struct {
+	Tank            string    `json:"tank"`
+	Kind            string    `json:"kind"`
+	Subtype         string    `json:"subtype,omitempty"`
+	DetectedAt      time.Time `json:"detected_at"`
+	Onset           time.Time `json:"onset"`
+	OnsetLo         time.Time `json:"onset_lo"`
+	OnsetHi         time.Time `json:"onset_hi"`
+	MagnitudePct    float64   `json:"magnitude_pct"`
+	Statistic       string    `json:"statistic"`
+	Value           float64   `json:"value"`
+	Threshold       float64   `json:"threshold"`
+	PValue          float64   `json:"p_value"`
+	FalseAlarmYears float64   `json:"false_alarm_years"`
+	Evidence        string    `json:"evidence"`
+	Forecast        *Forecast `json:"forecast,omitempty"`
+}
+
+// Forecast projects the outlet constant on its Theil-Sen trend to the
+// maintenance threshold MaintenanceFraction × baseline K.
+//
+// Date is when the trend line reaches ThresholdKM25s, [DateLo, DateHi] the
+// dates from the ends of the slope's 95 % confidence interval (DateHi zero
+// when the slower end does not fall). Reached is true when the current K is
+// already below the threshold. Drain times are the typical fitted drain span
+// at the baseline, current and threshold K (the span scales as 1/K for the
+// same heads).
+type Forecast struct {
+	BaselineKM25s         float64   `json:"baseline_k_m25s"`
+	CurrentKM25s          float64   `json:"current_k_m25s"`
+	ThresholdKM25s        float64   `json:"threshold_k_m25s"`
+	SlopePctPerDay        float64   `json:"slope_pct_per_day"`
+	SlopeLoPctPerDay      float64   `json:"slope_lo_pct_per_day"`
+	SlopeHiPctPerDay      float64   `json:"slope_hi_pct_per_day"`
+	Date                  time.Time `json:"date"`
+	DateLo                time.Time `json:"date_lo"`
+	DateHi                time.Time `json:"date_hi"`
+	Reached               bool      `json:"reached"`
+	DrainTimeBaselineS    float64   `json:"drain_time_baseline_s"`
+	DrainTimeNowS         float64   `json:"drain_time_now_s"`
+	DrainTimeAtThresholdS float64   `json:"drain_time_at_threshold_s"`
+}
+
+const nsPerDay = 24 * 3600 * 1e9
+
+func nsTime(ns int64) time.Time { return time.Unix(0, ns).UTC() }
+
+// Evaluate returns the tank's active findings at time now. Sensor faults come
+// first; while one is active the outlet and leak findings are withheld (a
+// drifting or stuck sensor must not be reported as a restriction). Evaluate
+// does not modify the state.
+func (s *State) Evaluate(now time.Time, opt Options) []Finding {
+	opt = opt.withDefaults()
+	out := s.sensorFindings(now, opt)
+	outlet := s.outletFindings(now, opt)
+	if len(out) > 0 {
+		return out
+	}
+	return outlet
+}
+
+// outletFindings runs the CUSUM, EWMA and leak charts and classifies.
+func (s *State) outletFindings(now time.Time, opt Options) []Finding {
+	var out []Finding
+	leak, leakDrift := s.leakFinding(now, opt)
+	if !s.Ref.Set || s.Monitored == 0 {
+		if leak != nil {
+			out = append(out, *leak)
+		}
+		if leakDrift != nil {
+			out = append(out, *leakDrift)
+		}
+		return out
+	}
+	arl := s.chartARL0(opt)
+	h := cusumH(opt.CUSUMK, arl)
+	lim := ewmaL(opt.EWMALambda, arl)
+	sig := math.Sqrt(opt.EWMALambda / (2 - opt.EWMALambda))
+	ew := s.EWMA.Value / sig
+	down := s.CUSUM.Lo > h || ew < -lim
+	up := s.CUSUM.Hi > h || ew > lim
+	base := Finding{Tank: s.Tank, DetectedAt: now, FalseAlarmYears: opt.FalseAlarmYears}
+	stat := func(f *Finding, c float64, run int) {
+		if c > h {
+			f.Statistic, f.Value, f.Threshold = "cusum", c, h
+			f.PValue = cusumTailPValue(opt.CUSUMK, c, s.Monitored)
+		} else {
+			f.Statistic, f.Value, f.Threshold = "ewma", math.Abs(ew), lim
+			f.PValue = ewmaTailPValue(opt.EWMALambda, math.Abs(s.EWMA.Value), s.Monitored)
+		}
+		_ = run
+	}
+	switch {
+	case down:
+		f := base
+		f.Kind = KindRestriction
+		stat(&f, s.CUSUM.Lo, s.CUSUM.LoRun)
+		s.classifyShift(&f, now, opt, s.CUSUM.LoRun)
+		out = append(out, f)
+	case up && leak != nil:
+		// The K rise is the leak's extra outflow during drains.
+		f := *leak
+		f.Evidence += fmt.Sprintf("; drains also show K up (CUSUM %.2f, EWMA %.2f sd)", s.CUSUM.Hi, ew)
+		leak = nil
+		out = append(out, f)
+	case up:
+		f := base
+		f.Kind = KindExcessOutflow
+		stat(&f, s.CUSUM.Hi, s.CUSUM.HiRun)
+		s.classifyShift(&f, now, opt, s.CUSUM.HiRun)
+		f.Subtype = ""
+		f.Forecast = nil
+		// Idle periods since the onset: a combined leak score above 3 means
+		// the extra outflow is a leak, before the leak chart itself signals.
+		var sw, swk float64
+		for _, ip := range s.Idle {
+			if ip.TimeNs >= f.OnsetLo.UnixNano() {
+				w := 1 / (ip.LeakKSE * ip.LeakKSE)
+				sw += w
+				swk += w * ip.LeakK
+			}
+		}
+		if zl := swk / math.Sqrt(sw); sw > 0 && zl > 3 {
+			f.Kind = KindTankLeak
+			f.MagnitudePct = 100 * swk / sw / s.Ref.KM25s
+			f.Evidence = fmt.Sprintf("level falls while shut since %s: leak constant %.3g m^2.5/s (%.1f %% of the outlet K, combined score %.1f > 3); drains show K up (%s %.2f > %.2f)",
+				f.OnsetLo.Format("2006-01-02"), swk/sw, f.MagnitudePct, zl, f.Statistic, f.Value, f.Threshold)
+		} else {
+			f.Evidence += "; idle periods show no leak, so the outlet passes more than its baseline"
+		}
+		out = append(out, f)
+	}
+	if leak != nil {
+		out = append(out, *leak)
+	}
+	if leakDrift != nil {
+		out = append(out, *leakDrift)
+	}
+	return out
+}
+
+// classifyShift locates the onset, measures the magnitude, tells a gradual
+// change from a step and forecasts.
+func (s *State) classifyShift(f *Finding, now time.Time, opt Options, run int) {
+	pts := s.Points
+	w := min(len(pts), max(3*run, 30))
+	win := pts[len(pts)-w:]
+	z := make([]float64, w)
+	td := make([]float64, w)
+	for i, p := range win {
+		z[i] = p.Z
+		td[i] = float64(p.TimeNs-win[0].TimeNs) / nsPerDay
+	}
+	cp := MeanShift(z)
+	if cp.Index == 0 {
+		cp.Index, cp.Lo, cp.Hi = 0, 0, 0
+	}
+	f.Onset = nsTime(win[cp.Index].TimeNs)
+	f.OnsetLo = nsTime(win[cp.Lo].TimeNs)
+	f.OnsetHi = nsTime(win[cp.Hi].TimeNs)
+	shape := fitShape(td, z)
+	// Trend on ln K after the ramp onset.
+	from := min(shape.RampIndex, cp.Index)
+	post := win[from:]
+	tt := make([]float64, len(post))
+	y := make([]float64, len(post))
+	for i, p := range post {
+		tt[i] = float64(p.TimeNs-now.UnixNano()) / nsPerDay
+		y[i] = p.LnK
+	}
+	mk := MannKendallCorrected(tt, y)
+	ts := TheilSen(tt, y, 0.95)
+	gradual := shape.RampGain > shape.StepGain && mk.P < opt.TrendAlpha && len(post) >= 8 &&
+		sgn(ts.Slope) == sgn(shape.RampSlope) && sgn(mk.S) == sgn(shape.RampSlope)
+	current := 0.0
+	if gradual {
+		f.Subtype = SubGradual
+		f.Onset = nsTime(win[shape.RampIndex].TimeNs)
+		current = ts.Intercept // t = 0 is now
+		// Theil-Sen's intercept is at t = 0 (now) by construction of tt.
+	} else {
+		f.Subtype = SubAbrupt
+		var sum float64
+		for _, p := range win[cp.Index:] {
+			sum += p.LnK
+		}
+		current = sum / float64(w-cp.Index)
+	}
+	f.MagnitudePct = 100 * (math.Exp(current-s.Ref.LnK) - 1)
+	kind := "fell"
+	if f.MagnitudePct > 0 {
+		kind = "rose"
+	}
+	f.Evidence = fmt.Sprintf("K %s %.1f %% from baseline %.4g m^2.5/s (%s %.2f > %.2f, about one false alarm per %.0f years at %.0f drains/year); change point %s (interval %s to %s)",
+		kind, math.Abs(f.MagnitudePct), s.Ref.KM25s, f.Statistic, f.Value, f.Threshold, opt.FalseAlarmYears, s.drainsPerYear(),
+		f.Onset.Format("2006-01-02"), f.OnsetLo.Format("2006-01-02"), f.OnsetHi.Format("2006-01-02"))
+	if gradual {
+		f.Evidence += fmt.Sprintf("; gradual: Theil-Sen %.3f %%/day (95 %% CI %.3f to %.3f), Mann-Kendall p = %.2g",
+			100*ts.Slope, 100*ts.Lo, 100*ts.Hi, mk.P)
+	} else {
+		f.Evidence += fmt.Sprintf("; abrupt step of %.2f sd", cp.Shift)
+	}
+	f.Forecast = s.forecast(current, ts, gradual, now, opt)
+}
+
+func (s *State) forecast(current float64, ts TheilSenResult, trending bool, now time.Time, opt Options) *Forecast {
+	kb := s.Ref.KM25s
+	thr := opt.MaintenanceFraction * kb
+	fc := &Forecast{BaselineKM25s: kb, CurrentKM25s: math.Exp(current), ThresholdKM25s: thr}
+	if s.Ref.SpanKS > 0 {
+		fc.DrainTimeBaselineS = s.Ref.SpanKS / kb
+		fc.DrainTimeNowS = s.Ref.SpanKS / fc.CurrentKM25s
+		fc.DrainTimeAtThresholdS = s.Ref.SpanKS / thr
+	}
+	if fc.CurrentKM25s <= thr {
+		fc.Reached = true
+	}
+	if !trending || !(ts.Slope < 0) {
+		return fc
+	}
+	fc.SlopePctPerDay, fc.SlopeLoPctPerDay, fc.SlopeHiPctPerDay = 100*ts.Slope, 100*ts.Lo, 100*ts.Hi
+	gap := math.Log(thr) - current // negative when still above
+	at := func(slope float64) time.Time {
+		if !(slope < 0) {
+			return time.Time{}
+		}
+		days := gap / slope
+		return now.Add(time.Duration(days * nsPerDay))
+	}
+	fc.Date, fc.DateLo, fc.DateHi = at(ts.Slope), at(ts.Lo), at(ts.Hi)
+	return fc
+}
+
+// leakFinding runs the idle leak CUSUM. A signal whose idle falls scale with
+// sqrt(head) is a tank_leak; one whose fall rate does not depend on head is
+// reported as sensor drift instead (second return).
+func (s *State) leakFinding(now time.Time, opt Options) (leak, drift *Finding) {
+	if s.LeakN == 0 {
+		return nil, nil
+	}
+	arl := 3 * opt.FalseAlarmYears * eventsPerYear(s.IdleTimesNs)
+	h := leakH(leakK, arl)
+	if s.LeakCUSUM <= h {
+		return nil, nil
+	}
+	// Idle periods with a clear fall among the recent ones.
+	var lh, lr []float64
+	var sumW, sumWK float64
+	first := int64(0)
+	for _, ip := range s.Idle[max(0, len(s.Idle)-30):] {
+		if ip.LeakK/ip.LeakKSE > 3 && ip.RateMs < 0 && ip.MeanHeadM > 0 {
+			lh = append(lh, math.Log(ip.MeanHeadM))
+			lr = append(lr, math.Log(-ip.RateMs))
+			if first == 0 {
+				first = ip.TimeNs
+			}
+		}
+		w := 1 / (ip.LeakKSE * ip.LeakKSE)
+		sumW += w
+		sumWK += w * ip.LeakK
+	}
+	meanLeak := sumWK / sumW
+	f := Finding{Tank: s.Tank, DetectedAt: now, Kind: KindTankLeak, Statistic: "leak_cusum", Value: s.LeakCUSUM,
+		Threshold: h, PValue: leakTailPValue(s.LeakCUSUM, s.LeakN), FalseAlarmYears: opt.FalseAlarmYears}
+	if first != 0 {
+		f.Onset = nsTime(first)
+	}
+	if s.Ref.Set && s.Ref.KM25s > 0 {
+		f.MagnitudePct = 100 * meanLeak / s.Ref.KM25s
+	}
+	exp, expSE, ok := slopeOLS(lh, lr)
+	if ok && len(lh) >= 3 && math.Abs(exp-0.5) > 3*expSE && math.Abs(exp) < 2*expSE {
+		f.Kind, f.Subtype = KindSensorFault, SubDrift
+		f.Evidence = fmt.Sprintf("level falls while shut at a rate that does not follow sqrt(head) (rate ∝ head^%.2f ± %.2f over %d idle periods, a leak gives 0.5): sensor drift, not a leak", exp, expSE, len(lh))
+		return nil, &f
+	}
+	f.Evidence = fmt.Sprintf("level falls while shut: leak constant %.3g m^2.5/s (%.1f %% of the outlet K) over the last idle periods, leak CUSUM %.1f > %.1f", meanLeak, f.MagnitudePct, s.LeakCUSUM, h)
+	if ok && len(lh) >= 3 {
+		f.Evidence += fmt.Sprintf("; fall rate ∝ head^%.2f ± %.2f, consistent with sqrt(head)", exp, expSE)
+	} else {
+		f.Evidence += "; heads too similar to check the sqrt(head) law"
+	}
+	return &f, nil
+}
+
+func leakTailPValue(c float64, n int) float64 {
+	if c <= 0 {
+		return 1
+	}
+	return -math.Expm1(-float64(n) / CUSUMARL(leakK, c, 0, 0))
+}
+
+// slopeOLS fits y = a + b x and returns b with its standard error; ok is
+// false with fewer than 3 points or x spanning less than ln 1.5.
+func slopeOLS(x, y []float64) (b, se float64, ok bool) {
+	n := len(x)
+	if n < 3 {
+		return 0, 0, false
+	}
+	if slices.Max(x)-slices.Min(x) < math.Log(1.5) {
+		return 0, 0, false
+	}
+	var mx, my float64
+	for i := range x {
+		mx += x[i]
+		my += y[i]
+	}
+	mx /= float64(n)
+	my /= float64(n)
+	var sxx, sxy float64
+	for i := range x {
+		sxx += (x[i] - mx) * (x[i] - mx)
+		sxy += (x[i] - mx) * (y[i] - my)
+	}
+	b = sxy / sxx
+	var rss float64
+	for i := range x {
+		r := y[i] - my - b*(x[i]-mx)
+		rss += r * r
+	}
+	se = math.Sqrt(rss / float64(n-2) / sxx)
+	return b, math.Max(se, 1e-9), true
+}
+
+// sensorFindings runs the feed and sensor checks.
+func (s *State) sensorFindings(now time.Time, opt Options) []Finding {
+	var out []Finding
+	ss := &s.Sensor
+	mk := func(sub, stat string, v, thr, p float64, ev string) Finding {
+		return Finding{Tank: s.Tank, Kind: KindSensorFault, Subtype: sub, DetectedAt: now, Statistic: stat,
+			Value: v, Threshold: thr, PValue: p, Evidence: ev}
+	}
+	nowNs := now.UnixNano()
+	if ss.LastSampleNs > 0 {
+		if age := time.Duration(nowNs - ss.LastSampleNs); age > opt.StaleAfter {
+			f := mk(SubStale, "age_h", age.Hours(), opt.StaleAfter.Hours(), math.NaN(),
+				fmt.Sprintf("no level sample for %.1f h (last at %s, limit %.1f h)", age.Hours(), nsTime(ss.LastSampleNs).Format(time.RFC3339), opt.StaleAfter.Hours()))
+			f.Onset = nsTime(ss.LastSampleNs)
+			out = append(out, f)
+		}
+		if flat := time.Duration(ss.LastSampleNs - ss.FlatSinceNs); flat >= opt.StuckAfter {
+			f := mk(SubStuck, "flat_h", flat.Hours(), opt.StuckAfter.Hours(), math.NaN(),
+				fmt.Sprintf("the level reading has not changed by a single bit for %.1f h (limit %.1f h)", flat.Hours(), opt.StuckAfter.Hours()))
+			f.Onset = nsTime(ss.FlatSinceNs)
+			out = append(out, f)
+		}
+	}
+	win := int64(opt.GapWindow)
+	var lost int64
+	for _, g := range ss.Gaps {
+		lo, hi := max(g.StartNs, nowNs-win), min(g.EndNs, nowNs)
+		if hi > lo {
+			lost += hi - lo
+		}
+	}
+	if share := float64(lost) / float64(win); share > opt.GapShare {
+		out = append(out, mk(SubGap, "gap_share", share, opt.GapShare, math.NaN(),
+			fmt.Sprintf("gaps cover %.0f %% of the last %.0f h (limit %.0f %%)", 100*share, opt.GapWindow.Hours(), 100*opt.GapShare)))
+	}
+	out = append(out, s.recordFindings(now, opt)...)
+	return out
+}
+
+// recordFindings compares recent segment records with the baseline ones.
+func (s *State) recordFindings(now time.Time, opt Options) []Finding {
+	var out []Finding
+	const recent = 5
+	split := func(idle bool) (base, rec []SensorRec) {
+		var all []SensorRec
+		for _, r := range s.Sensor.Recs {
+			if r.Idle == idle && r.TimeNs >= s.Sensor.EpochNs {
+				all = append(all, r)
+			}
+		}
+		nb := opt.BaselineDrains
+		if len(all) < nb+recent {
+			return nil, nil
+		}
+		return all[:nb], all[len(all)-recent:]
+	}
+	mk := func(sub, stat string, v, thr, p float64, ev string) Finding {
+		return Finding{Tank: s.Tank, Kind: KindSensorFault, Subtype: sub, DetectedAt: now, Statistic: stat,
+			Value: v, Threshold: thr, PValue: p, Evidence: ev}
+	}
+	noiseDone, spikeDone := false, false
+	for _, idle := range []bool{true, false} {
+		base, rec := split(idle)
+		if base == nil {
+			continue
+		}
+		what := "drain fits"
+		eff := 1.0
+		if idle {
+			what = "idle periods"
+			eff = 0.37 // MAD-based scatter: about 37 % of the degrees of freedom
+		}
+		// Stuck: zero noise with a flat run over most of the latest idle period.
+		if idle {
+			last := rec[len(rec)-1]
+			if last.N >= 20 && last.NoiseM == 0 && float64(last.FlatRun) >= 0.9*float64(last.N) && medianNoise(base) > 0 {
+				out = append(out, mk(SubStuck, "flat_run", float64(last.FlatRun), 0.9*float64(last.N), math.NaN(),
+					fmt.Sprintf("latest idle period: %d of %d readings identical and zero noise (baseline noise %.2g m)", last.FlatRun, last.N, medianNoise(base))))
+			}
+		}
+		// Noise: F test on the variances, with a practical factor.
+		bn, rn := medianNoise(base), medianNoise(rec)
+		if !noiseDone && bn > 0 && rn/bn >= opt.NoiseFactor {
+			d1, d2 := eff*float64(sumN(rec)-2*len(rec)), eff*float64(sumN(base)-2*len(base))
+			if d1 > 0 && d2 > 0 {
+				fstat := (rn * rn) / (bn * bn)
+				p := distuv.F{D1: d1, D2: d2}.Survival(fstat)
+				if p < opt.SensorAlpha {
+					out = append(out, mk(SubNoise, "noise_ratio", rn/bn, opt.NoiseFactor, p,
+						fmt.Sprintf("level noise in recent %s is %.1f× baseline (%.2g vs %.2g m; F = %.1f, p = %.2g)", what, rn/bn, rn, bn, fstat, p)))
+					noiseDone = true
+				}
+			}
+		}
+		// Spikes: Poisson test on the rate per sample.
+		bs, bN := sumSpikes(base), sumN(base)
+		rs, rN := sumSpikes(rec), sumN(rec)
+		if !spikeDone && bN > 0 && rN > 0 {
+			rate := math.Max((float64(bs)+0.5)/float64(bN), 1e-4)
+			mu := rate * float64(rN)
+			if rs > 0 && float64(rs)/float64(rN) >= opt.SpikeFactor*rate {
+				p := 1 - distuv.Poisson{Lambda: mu}.CDF(float64(rs-1))
+				if p < opt.SensorAlpha {
+					out = append(out, mk(SubSpikes, "spike_rate", float64(rs)/float64(rN), opt.SpikeFactor*rate, p,
+						fmt.Sprintf("%d spikes in %d samples of recent %s, %.1f× the baseline rate %.2g per sample (Poisson p = %.2g)", rs, rN, what, float64(rs)/float64(rN)/rate, rate, p)))
+					spikeDone = true
+				}
+			}
+		}
+	}
+	// Drift of the empty-tank reading on complete drains.
+	var empties []SensorRec
+	for _, r := range s.Sensor.Recs {
+		if !r.Idle && r.HasEmpty && r.TimeNs >= s.Sensor.EpochNs {
+			empties = append(empties, r)
+		}
+	}
+	if nb := opt.BaselineDrains; len(empties) >= nb+recent {
+		b := make([]float64, 0, nb)
+		for _, r := range empties[:nb] {
+			b = append(b, r.EmptyHeadM)
+		}
+		var rr []float64
+		for _, r := range empties[len(empties)-recent:] {
+			rr = append(rr, r.EmptyHeadM)
+		}
+		mb, mr := median(b), median(rr)
+		if d := mr - mb; math.Abs(d) > opt.DriftM && (slices.Min(rr)-mb)*(slices.Max(rr)-mb) > 0 {
+			f := mk(SubDrift, "empty_shift_m", d, opt.DriftM, math.NaN(),
+				fmt.Sprintf("the empty tank now reads %+.3f m against %+.3f m at baseline (all of the last %d complete drains beyond, limit %.3f m)", mr, mb, recent, opt.DriftM))
+			out = append(out, f)
+		}
+	}
+	// Level rising while shut.
+	if n := len(s.Idle); n >= recent {
+		rising := 0
+		for _, ip := range s.Idle[n-recent:] {
+			if ip.RateSEMs > 0 && ip.RateMs > 3*ip.RateSEMs {
+				rising++
+			}
+		}
+		if rising >= recent-1 {
+			out = append(out, mk(SubDrift, "rising_idle", float64(rising), float64(recent-1), math.NaN(),
+				fmt.Sprintf("the level rose while the tank was shut in %d of the last %d idle periods", rising, recent)))
+		}
+	}
+	return out
+}
+
+func medianNoise(r []SensorRec) float64 {
+	x := make([]float64, len(r))
+	for i, v := range r {
+		x[i] = v.NoiseM
+	}
+	return median(x)
+}
+
+func sumN(r []SensorRec) int {
+	n := 0
+	for _, v := range r {
+		n += v.N
+	}
+	return n
+}
+
+func sumSpikes(r []SensorRec) int {
+	n := 0
+	for _, v := range r {
+		n += v.Spikes
+	}
+	return n
+}

@@ -1,0 +1,152 @@
+package detect
+
+import (
+	"time"
+
+	"drainsight/model"
+)
+
+// Options tunes the per-tank detector. The zero value means the documented
+// defaults; withDefaults fills them.
+type Options struct {
+	// BaselineDrains is the number of accepted drains after commissioning
+	// or maintenance that form the baseline before monitoring starts.
+	// Default 8.
+	BaselineDrains int
+	// LearnDrains caps the size of the reference: until then every
+	// in-control drain (|T| < 3, charts below half their limits) joins it,
+	// self-starting style. Default 0: no cap (the false-alarm rate stays
+	// exact; a cap freezes estimation error into the charts).
+	LearnDrains int
+	// DesignKM25s, when > 0, fixes the reference K (m^2.5/s) instead of the
+	// baseline median; the scatter is still learned from the data.
+	DesignKM25s float64
+	// FalseAlarmYears is the mean interval between false outlet alarms on a
+	// healthy tank, in years. Default 5 (one false alarm per tank per five
+	// years). The CUSUM and the EWMA each get half the false-alarm budget.
+	FalseAlarmYears float64
+	// CUSUMK is the CUSUM reference value in standard deviations of z
+	// (tuned to a shift of 2k). Default 0.5.
+	CUSUMK float64
+	// EWMALambda is the EWMA smoothing constant. Default 0.1.
+	EWMALambda float64
+	// MaintenanceFraction is the fraction of the baseline K at which the
+	// outlet needs cleaning; forecasts aim at it. Default 0.8.
+	MaintenanceFraction float64
+	// MinQuality is the lowest fit grade used for the outlet statistics.
+	// Default model.QualityB (A and B used).
+	MinQuality model.Quality
+	// MinScatter is the floor on the between-drain scatter tau of ln K.
+	// Default 0.005 (0.5 %), common practice for fitted orifice constants
+	// (Cd alone drifts about 1 % over a drain's head range).
+	MinScatter float64
+	// TrendDrains is the most recent drains used for Mann-Kendall and
+	// Theil-Sen. Default 60.
+	TrendDrains int
+	// TrendAlpha is the significance level of the trend test used to call a
+	// restriction gradual and to forecast. Default 0.05.
+	TrendAlpha float64
+
+	// StaleAfter: no sample for this long means the feed is stale.
+	// Default 6 h.
+	StaleAfter time.Duration
+	// GapLimit: a step between samples longer than this is a gap.
+	// Default 15 min.
+	GapLimit time.Duration
+	// GapWindow and GapShare: a gap finding is raised when gaps cover more
+	// than GapShare of the last GapWindow. Defaults 24 h and 0.1.
+	GapWindow time.Duration
+	GapShare  float64
+	// StuckAfter: bit-identical readings for this long mean a stuck
+	// sensor. Default 12 h.
+	StuckAfter time.Duration
+	// NoiseFactor is the rise in level noise (idle NoiseM or fit SigmaM,
+	// recent median over baseline median) that counts as a noisy sensor.
+	// Default 2.
+	NoiseFactor float64
+	// SpikeFactor is the rise in the spike rate that counts. Default 3.
+	SpikeFactor float64
+	// DriftM is the shift of the empty-tank reading (EmptyHeadM on complete
+	// drains) that counts as sensor drift, m. Default 0.01.
+	DriftM float64
+	// SensorAlpha is the per-evaluation significance level of the noise and
+	// spike tests. Default 1e-4.
+	SensorAlpha float64
+}
+
+func (o Options) withDefaults() Options {
+	if o.BaselineDrains <= 0 {
+		o.BaselineDrains = 8
+	}
+	if o.LearnDrains < 0 {
+		o.LearnDrains = 0
+	}
+	if o.LearnDrains > 0 {
+		o.LearnDrains = max(o.LearnDrains, o.BaselineDrains)
+	}
+	if o.FalseAlarmYears <= 0 {
+		o.FalseAlarmYears = 5
+	}
+	if o.CUSUMK <= 0 {
+		o.CUSUMK = 0.5
+	}
+	if o.EWMALambda <= 0 || o.EWMALambda > 1 {
+		o.EWMALambda = 0.1
+	}
+	if o.MaintenanceFraction <= 0 || o.MaintenanceFraction >= 1 {
+		o.MaintenanceFraction = 0.8
+	}
+	if o.MinQuality == "" {
+		o.MinQuality = model.QualityB
+	}
+	if o.MinScatter <= 0 {
+		o.MinScatter = 0.005
+	}
+	if o.TrendDrains <= 0 {
+		o.TrendDrains = 60
+	}
+	if o.TrendAlpha <= 0 || o.TrendAlpha >= 1 {
+		o.TrendAlpha = 0.05
+	}
+	if o.StaleAfter <= 0 {
+		o.StaleAfter = 6 * time.Hour
+	}
+	if o.GapLimit <= 0 {
+		o.GapLimit = 15 * time.Minute
+	}
+	if o.GapWindow <= 0 {
+		o.GapWindow = 24 * time.Hour
+	}
+	if o.GapShare <= 0 {
+		o.GapShare = 0.1
+	}
+	if o.StuckAfter <= 0 {
+		o.StuckAfter = 12 * time.Hour
+	}
+	if o.NoiseFactor <= 1 {
+		o.NoiseFactor = 2
+	}
+	if o.SpikeFactor <= 1 {
+		o.SpikeFactor = 3
+	}
+	if o.DriftM <= 0 {
+		o.DriftM = 0.01
+	}
+	if o.SensorAlpha <= 0 || o.SensorAlpha >= 1 {
+		o.SensorAlpha = 1e-4
+	}
+	return o
+}
+
+// qualityRank orders the grades, A best.
+func qualityRank(q model.Quality) int {
+	switch q {
+	case model.QualityA:
+		return 3
+	case model.QualityB:
+		return 2
+	case model.QualityC:
+		return 1
+	}
+	return 0
+}

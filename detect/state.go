@@ -1,0 +1,408 @@
+package detect
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"time"
+
+	"gonum.org/v1/gonum/stat/distuv"
+
+	"drainsight/model"
+)
+
+// StateVersion is the layout version written into State.Version.
+const StateVersion = 1
+
+// History caps, so that a persisted State stays small (a few tens of kB).
+const (
+	maxPoints     = 400 // monitored drains kept for trend and change point
+	maxIdle       = 200 // idle periods kept
+	maxFreq       = 120 // fit times kept for the drain frequency
+	maxSensorRecs = 200 // per-segment sensor records kept
+	maxGaps       = 200 // gaps kept
+	zClip         = 4.0 // standardised values are clipped to ±zClip (winsorised)
+)
+
+// State is one tank's detector state. It is plain data with JSON tags: the
+// durable store persists it between runs and a later run continues the
+// statistics. Fits and idle periods must be added in time order. Not safe
+// for concurrent use; distinct States are independent.
+type State struct {
+	Tank    string `json:"tank"`
+	Version int    `json:"version"`
+
+	// EpochNs is the start of the current outlet baseline (0 at
+	// commissioning, else the time of the last cleaning/repair/replacement).
+	EpochNs     int64   `json:"epoch_ns"`
+	LastAction  string  `json:"last_action,omitempty"`
+	LastFitNs   int64   `json:"last_fit_end_ns"`
+	LastIdleNs  int64   `json:"last_idle_end_ns"`
+	FitTimesNs  []int64 `json:"fit_times_ns"`  // recent accepted drain ends, for the drain frequency
+	IdleTimesNs []int64 `json:"idle_times_ns"` // recent idle ends, for the idle frequency
+
+	Ref   Reference `json:"ref"`
+	Learn []Point   `json:"learn"` // the reference set (baseline and learned drains)
+
+	CUSUM     CUSUM   `json:"cusum"`
+	EWMA      EWMA    `json:"ewma"`
+	Monitored int     `json:"monitored"` // drains standardised since the reference was set
+	Points    []Point `json:"points"`    // monitored drains, newest last, capped
+
+	Idle      []IdlePoint `json:"idle"`
+	LeakCUSUM float64     `json:"leak_cusum"` // one-sided upper CUSUM on leak scores
+	LeakN     int         `json:"leak_n"`
+
+	Sensor SensorState `json:"sensor"`
+
+	minScatter2 float64 // MinScatter^2 of the last AddFit call
+}
+
+// Reference is the outlet baseline.
+//
+// The first BaselineDrains accepted drains give a robust start: their median
+// ln K (BaseLnK) and scaled MAD screen out gross outliers (beyond 3.5 MAD),
+// and the remaining drains seed running sums. From then on every drain that
+// looks in control joins the sums (self-starting, Hawkins 1987): LnK is the
+// running mean of ln K (or ln DesignKM25s), M2 the sum of squared deviations
+// about it, N the count, so s^2 = M2/DegreesOF is the total between-drain
+// variance and Tau = sqrt(max(0, s^2 - MeanSE2)) the scatter beyond the fit
+// error.
+type Reference struct {
+	Set       bool    `json:"set"`
+	Design    bool    `json:"design"`
+	LnK       float64 `json:"ln_k"`
+	BaseLnK   float64 `json:"base_ln_k"`
+	MAD       float64 `json:"mad"`
+	M2        float64 `json:"m2"`
+	SumSE2    float64 `json:"sum_se2"`
+	MeanSE2   float64 `json:"mean_se2"`
+	Tau       float64 `json:"tau"`
+	N         int     `json:"n"`
+	DegreesOF int     `json:"dof"`
+	SetAtNs   int64   `json:"set_at_ns"`
+	SpanKS    float64 `json:"span_k"` // median of (fitted drain span × K), m^2.5, for drain-time forecasts
+	KM25s     float64 `json:"k_m25s"`
+}
+
+// Point is one accepted drain: time (end of the fit), ln K, the relative
+// standard error se/K, the fitted span (s) and the standardised score Z
+// (0 for baseline drains, which are not scored).
+type Point struct {
+	TimeNs int64   `json:"t"`
+	LnK    float64 `json:"lnk"`
+	SERel  float64 `json:"se"`
+	SpanS  float64 `json:"span"`
+	Z      float64 `json:"z"`
+}
+
+// IdlePoint is one idle period: leak constant and its standard error, the
+// mean head, the mean rate and its standard error.
+type IdlePoint struct {
+	TimeNs    int64   `json:"t"`
+	LeakK     float64 `json:"leak_k"`
+	LeakKSE   float64 `json:"leak_k_se"`
+	MeanHeadM float64 `json:"head_m"`
+	RateMs    float64 `json:"rate_ms"`
+	RateSEMs  float64 `json:"rate_se_ms"`
+}
+
+// SensorState holds what the sensor checks need.
+type SensorState struct {
+	EpochNs      int64       `json:"epoch_ns"`
+	LastSampleNs int64       `json:"last_sample_ns"`
+	LastHeadM    float64     `json:"last_head_m"`
+	FlatSinceNs  int64       `json:"flat_since_ns"`
+	Gaps         []Gap       `json:"gaps"`
+	Recs         []SensorRec `json:"recs"`
+}
+
+// Gap is a stretch without samples.
+type Gap struct {
+	StartNs int64 `json:"start_ns"`
+	EndNs   int64 `json:"end_ns"`
+}
+
+// SensorRec is the sensor evidence from one fitted segment: the number of
+// samples, the spikes/outliers rejected, the level noise (idle NoiseM or the
+// fit's SigmaM), the longest flat run, and the empty-tank reading of a
+// complete drain (HasEmpty; 0 otherwise). Idle tells which kind of segment
+// it is. JSON has no NaN, so absent values are flagged rather than NaN.
+type SensorRec struct {
+	TimeNs     int64   `json:"t"`
+	Idle       bool    `json:"idle"`
+	N          int     `json:"n"`
+	Spikes     int     `json:"spikes"`
+	NoiseM     float64 `json:"noise_m"`
+	FlatRun    int     `json:"flat_run"`
+	EmptyHeadM float64 `json:"empty_m"`
+	HasEmpty   bool    `json:"has_empty"`
+}
+
+// NewState returns the empty state of a tank.
+func NewState(tank string) *State {
+	return &State{Tank: tank, Version: StateVersion}
+}
+
+func appendCapped[T any](s []T, v T, limit int) []T {
+	s = append(s, v)
+	if len(s) > limit {
+		s = slices.Delete(s, 0, len(s)-limit)
+	}
+	return s
+}
+
+// AddFit adds one drain fit. Fits must come in time order; a fit whose end is
+// not after the last one seen is ignored (so re-reading a window is
+// harmless), as is one ending before the current epoch. Fits graded below
+// opt.MinQuality, or with a non-positive or non-finite K, do not enter the
+// outlet statistics but still feed the sensor checks.
+func (s *State) AddFit(f model.Fit, opt Options) {
+	opt = opt.withDefaults()
+	if f.EndNs <= s.LastFitNs || f.EndNs < s.EpochNs {
+		return
+	}
+	s.LastFitNs = f.EndNs
+	if f.Quality != model.QualityReject {
+		s.Sensor.Recs = appendCapped(s.Sensor.Recs, SensorRec{
+			TimeNs: f.EndNs, N: f.N, Spikes: f.Outliers, NoiseM: f.SigmaM,
+			EmptyHeadM: f.EmptyHeadM, HasEmpty: f.Complete && !math.IsNaN(f.EmptyHeadM),
+		}, maxSensorRecs)
+	}
+	if qualityRank(f.Quality) < qualityRank(opt.MinQuality) || !(f.KM25s > 0) || math.IsInf(f.KM25s, 0) {
+		return
+	}
+	se := f.KSEM25s / f.KM25s
+	if !(se >= 0) || math.IsInf(se, 0) {
+		se = 0
+	}
+	s.minScatter2 = opt.MinScatter * opt.MinScatter
+	s.FitTimesNs = appendCapped(s.FitTimesNs, f.EndNs, maxFreq)
+	p := Point{TimeNs: f.EndNs, LnK: math.Log(f.KM25s), SERel: se, SpanS: float64(f.EndNs-f.StartNs) / 1e9}
+
+	if !s.Ref.Set {
+		s.Learn = append(s.Learn, p)
+		if len(s.Learn) >= opt.BaselineDrains {
+			s.setReference(opt)
+			s.Ref.SetAtNs = f.EndNs
+		}
+		return
+	}
+	t, tRaw := s.score(p)
+	p.Z = t
+	s.CUSUM.K = opt.CUSUMK
+	s.EWMA.Lambda = opt.EWMALambda
+	s.CUSUM.Update(t)
+	s.EWMA.Update(t)
+	s.Monitored++
+	s.Points = appendCapped(s.Points, p, maxPoints)
+
+	if opt.LearnDrains == 0 || s.Ref.N < opt.LearnDrains {
+		arl := s.chartARL0(opt)
+		h := cusumH(opt.CUSUMK, arl)
+		l := ewmaL(opt.EWMALambda, arl) * s.EWMA.Sigma()
+		if math.Abs(tRaw) < 6 && s.CUSUM.Hi <= h && s.CUSUM.Lo <= h && math.Abs(s.EWMA.Value) <= l {
+			s.learn(p)
+		}
+	}
+}
+
+// learn adds an in-control drain to the running reference (Welford).
+func (s *State) learn(p Point) {
+	r := &s.Ref
+	r.N++
+	r.SumSE2 += p.SERel * p.SERel
+	if r.Design {
+		d := p.LnK - r.LnK
+		r.M2 += d * d
+	} else {
+		d := p.LnK - r.LnK
+		r.LnK += d / float64(r.N)
+		r.M2 += d * (p.LnK - r.LnK)
+	}
+	s.refDerived()
+}
+
+func (s *State) refDerived() {
+	r := &s.Ref
+	r.DegreesOF = r.N - 1
+	if r.Design {
+		r.DegreesOF = r.N
+	}
+	r.DegreesOF = max(r.DegreesOF, 1)
+	r.MeanSE2 = r.SumSE2 / float64(max(r.N, 1))
+	r.Tau = math.Sqrt(math.Max(0, r.M2/float64(r.DegreesOF)-r.MeanSE2))
+	r.KM25s = math.Exp(r.LnK)
+}
+
+// setReference builds the reference from the baseline drains: the median
+// and scaled MAD of ln K (about ln DesignKM25s when given) screen out drains
+// beyond 3.5 MAD, and the rest seed the running sums.
+func (s *State) setReference(opt Options) {
+	x := make([]float64, len(s.Learn))
+	spanK := make([]float64, len(s.Learn))
+	for i, p := range s.Learn {
+		x[i] = p.LnK
+		spanK[i] = p.SpanS * math.Exp(p.LnK)
+	}
+	ref := median(x)
+	design := opt.DesignKM25s > 0
+	if design {
+		ref = math.Log(opt.DesignKM25s)
+	}
+	dev := make([]float64, len(x))
+	for i, v := range x {
+		dev[i] = math.Abs(v - ref)
+	}
+	mad := 1.4826 * median(dev)
+	s.Ref = Reference{Set: true, Design: design, BaseLnK: ref, MAD: mad, SpanKS: median(spanK)}
+	if design {
+		s.Ref.LnK = ref
+	}
+	for i, p := range s.Learn {
+		if mad > 0 && dev[i] > 3.5*mad {
+			continue
+		}
+		s.learn(p)
+	}
+	if s.Ref.N == 0 {
+		s.Ref.LnK = ref
+		s.refDerived()
+	}
+}
+
+// score standardises a drain against the reference (Hawkins 1987,
+// self-starting): with s^2 = M2/ν the reference variance of ln K (ν its
+// degrees of freedom, s floored at MinScatter),
+//
+//	T = (ln K - LnK) / sqrt(s^2 (1 + 1/n) + max(0, se^2 - MeanSE2))
+//
+// (no 1/n term for a design K; the last term widens drains fitted less
+// well than usual) follows Student's t with ν degrees of freedom for a
+// healthy tank, and z = Φ^{-1}(F_t(T)) is exactly N(0, 1) although the
+// reference was estimated. z is clipped to ±4 (winsorised) so that one wild
+// drain cannot raise an alarm alone. It returns z and T.
+func (s *State) score(p Point) (z, t float64) {
+	r := &s.Ref
+	s2 := math.Max(r.M2/float64(r.DegreesOF), s.minScatter2)
+	v := s2
+	if !r.Design {
+		v *= 1 + 1/float64(max(r.N, 1))
+	}
+	v += math.Max(0, p.SERel*p.SERel-r.MeanSE2)
+	t = (p.LnK - r.LnK) / math.Sqrt(v)
+	u := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(r.DegreesOF)}.CDF(t)
+	u = math.Min(math.Max(u, 1e-12), 1-1e-12)
+	z = normQuantile(u)
+	return math.Max(-zClip, math.Min(zClip, z)), t
+}
+
+// drainsPerYear is the tank's observed drain frequency over the recent fit
+// times; 365 (one a day) until two weeks or 8 drains have been seen.
+func (s *State) drainsPerYear() float64 {
+	return eventsPerYear(s.FitTimesNs)
+}
+
+func eventsPerYear(ts []int64) float64 {
+	const year = 365.25 * 24 * 3600 * 1e9
+	n := len(ts)
+	if n < 8 || float64(ts[n-1]-ts[0]) < 14*24*3600*1e9 {
+		return 365
+	}
+	return float64(n-1) / (float64(ts[n-1]-ts[0]) / year)
+}
+
+// chartARL0 is the in-control ARL (in drains) given to each of the outlet
+// CUSUM and EWMA: three times FalseAlarmYears × drains per year, so that with
+// the idle leak chart (which gets the same share) the three together give
+// about one false alarm per FalseAlarmYears.
+func (s *State) chartARL0(opt Options) float64 {
+	return 3 * opt.FalseAlarmYears * s.drainsPerYear()
+}
+
+// AddIdle adds one idle-period fit (in time order; repeats are ignored).
+// Its leak constant feeds a one-sided CUSUM on the leak score
+// z = LeakKM25s / LeakKSEM25s (k = 0.5, clipped to ±4); its noise, spikes
+// and flat run feed the sensor checks.
+func (s *State) AddIdle(f model.IdleFit, opt Options) {
+	opt = opt.withDefaults()
+	if f.EndNs <= s.LastIdleNs || f.EndNs < s.EpochNs {
+		return
+	}
+	s.LastIdleNs = f.EndNs
+	s.Sensor.Recs = appendCapped(s.Sensor.Recs, SensorRec{
+		TimeNs: f.EndNs, Idle: true, N: f.N, Spikes: f.Spikes, NoiseM: f.NoiseM, FlatRun: f.FlatRun,
+	}, maxSensorRecs)
+	if !(f.LeakKSEM25s > 0) || math.IsNaN(f.LeakKM25s) {
+		return
+	}
+	s.IdleTimesNs = appendCapped(s.IdleTimesNs, f.EndNs, maxFreq)
+	s.Idle = appendCapped(s.Idle, IdlePoint{
+		TimeNs: f.EndNs, LeakK: f.LeakKM25s, LeakKSE: f.LeakKSEM25s, MeanHeadM: f.MeanHeadM, RateMs: f.RateMs, RateSEMs: f.RateSEMs,
+	}, maxIdle)
+	z := math.Max(-zClip, math.Min(zClip, f.LeakKM25s/f.LeakKSEM25s))
+	s.LeakCUSUM = math.Max(0, s.LeakCUSUM+z-leakK)
+	s.LeakN++
+}
+
+// leakK is the reference value of the leak CUSUM.
+const leakK = 0.5
+
+// AddSeries scans new raw samples of the tank's level for the feed checks:
+// the time of the newest sample (stale), gaps longer than opt.GapLimit, and
+// the current run of bit-identical readings (stuck). Samples at or before the
+// last one seen are skipped, so overlapping windows are harmless.
+func (s *State) AddSeries(ser *model.Series, opt Options) {
+	opt = opt.withDefaults()
+	ss := &s.Sensor
+	for i, t := range ser.TimeNs {
+		if t <= ss.LastSampleNs {
+			continue
+		}
+		h := ser.HeadM[i]
+		if ss.LastSampleNs > 0 {
+			if t-ss.LastSampleNs > int64(opt.GapLimit) {
+				ss.Gaps = appendCapped(ss.Gaps, Gap{StartNs: ss.LastSampleNs, EndNs: t}, maxGaps)
+			}
+			if h != ss.LastHeadM {
+				ss.FlatSinceNs = t
+			}
+		} else {
+			ss.FlatSinceNs = t
+		}
+		ss.LastSampleNs, ss.LastHeadM = t, h
+	}
+}
+
+// Reset records maintenance at time at. "cleaned", "repaired" and
+// "replaced" restart the outlet baseline (and the idle leak statistics) from
+// that time: drains before it are ignored and the next BaselineDrains
+// accepted drains form the new baseline. "sensor-calibrated" restarts the
+// sensor checks. Any other action is an error.
+func (s *State) Reset(at time.Time, action string) error {
+	ns := at.UnixNano()
+	switch action {
+	case "cleaned", "repaired", "replaced":
+		s.EpochNs = ns
+		s.LastAction = action
+		s.Ref = Reference{}
+		s.Learn = nil
+		s.CUSUM = CUSUM{}
+		s.EWMA = EWMA{}
+		s.Monitored = 0
+		s.Points = nil
+		s.Idle = nil
+		s.LeakCUSUM, s.LeakN = 0, 0
+		s.LastFitNs = max(s.LastFitNs, ns)
+		s.LastIdleNs = max(s.LastIdleNs, ns)
+	case "sensor-calibrated":
+		s.LastAction = action
+		s.Sensor.EpochNs = ns
+		s.Sensor.Recs = nil
+		s.Sensor.Gaps = nil
+		s.Sensor.FlatSinceNs = max(s.Sensor.FlatSinceNs, ns)
+	default:
+		return fmt.Errorf("detect: tank %s: unknown maintenance action %q (want cleaned, repaired, replaced or sensor-calibrated)", s.Tank, action)
+	}
+	return nil
+}
