@@ -372,8 +372,11 @@ func (ht *HeadTransform) inv(f float64, hint int) (float64, int) {
 		t = (f - nodes[j]) / span
 	}
 	lo, hi := 0.0, 1.0
-	for range 40 {
+	for range 60 {
 		p := c[0] + t*(c[1]+t*(c[2]+t*c[3])) - f
+		if p == 0 {
+			break
+		}
 		if p > 0 {
 			hi = t
 		} else {
@@ -381,15 +384,17 @@ func (ht *HeadTransform) inv(f float64, hint int) (float64, int) {
 		}
 		dp := c[1] + t*(2*c[2]+3*t*c[3])
 		tn := t - p/dp
-		if !(tn > lo && tn < hi) { // also catches dp == 0 and NaN
-			tn = 0.5 * (lo + hi)
-		}
-		if math.Abs(tn-t) <= 1e-15 {
+		// 1e-12 of an interval is below 1e-15 of u: at the rounding level of p.
+		if math.Abs(tn-t) <= 1e-12 {
 			t = tn
 			break
 		}
+		if !(tn > lo && tn < hi) { // also catches dp == 0 and NaN
+			tn = 0.5 * (lo + hi)
+		}
 		t = tn
 	}
+	t = clamp(t, 0, 1)
 	u := (float64(j) + t) * ht.du
 	if j < directIntervals {
 		// Polish on the directly integrated F (Newton in u, dF/du = 2A(u^2)).
