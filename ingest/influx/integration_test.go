@@ -174,6 +174,15 @@ func TestIntegrationHostileTankIDs(t *testing.T) {
 	if len(got) > len(ok) {
 		t.Errorf("got %d tanks, want %d: %q", len(got), len(ok), slices.Collect(mapsKeys(got)))
 	}
+	// The hostile spec of the golden test must be valid Flux on the server.
+	hs, err := c.Source(SeriesSpec{Measurement: `lvl "x" ${m}`, Field: `f\n`, TankTag: "tank id",
+		Tags: map[string]string{"and": `a"b`, "si/te": "${site}"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n, err := hs.Pull(ctx, hostileIDs, itBase, itBase+3600e9, func(string, int64, float64) {}); err != nil || n != 0 {
+		t.Errorf("pull with the hostile spec: got %d samples, %v; want 0, nil", n, err)
+	}
 	// And each one alone, also as an extra tag filter value.
 	for _, id := range ok {
 		src2, err := c.Source(SeriesSpec{Measurement: meas, Field: "level", Tags: map[string]string{"tank2": id}})

@@ -4,7 +4,9 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"maps"
 	"math"
+	"slices"
 	"time"
 
 	"github.com/influxdata/influxdb-client-go/v2/api/write"
@@ -53,8 +55,11 @@ func (p *Point) toWrite() (*write.Point, error) {
 	if err := lineSafe(p.Measurement); err != nil {
 		return nil, fmt.Errorf("measurement %q %w", p.Measurement, err)
 	}
+	// Keys in sorted order: the line is then deterministic, and sorted tags
+	// are what the server stores anyway.
 	wp := write.NewPointWithMeasurement(p.Measurement).SetTime(time.Unix(0, p.TimeNs))
-	for k, v := range p.Tags {
+	for _, k := range slices.Sorted(maps.Keys(p.Tags)) {
+		v := p.Tags[k]
 		if err := lineSafe(k); err != nil {
 			return nil, fmt.Errorf("tag key %q %w", k, err)
 		}
@@ -63,22 +68,24 @@ func (p *Point) toWrite() (*write.Point, error) {
 		}
 		wp.AddTag(k, v)
 	}
+	keys := slices.AppendSeq(slices.Collect(maps.Keys(p.Fields)), maps.Keys(p.StringFields))
+	slices.Sort(keys)
 	nf := 0
-	for k, v := range p.Fields {
+	for i, k := range keys {
+		if i > 0 && keys[i-1] == k {
+			return nil, fmt.Errorf("field %q is both numeric and string", k)
+		}
 		if err := lineSafe(k); err != nil {
 			return nil, fmt.Errorf("field key %q %w", k, err)
 		}
-		if math.IsNaN(v) || math.IsInf(v, 0) {
-			continue
+		if v, ok := p.Fields[k]; ok {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				continue
+			}
+			wp.AddField(k, v)
+		} else {
+			wp.AddField(k, p.StringFields[k])
 		}
-		wp.AddField(k, v)
-		nf++
-	}
-	for k, v := range p.StringFields {
-		if err := lineSafe(k); err != nil {
-			return nil, fmt.Errorf("field key %q %w", k, err)
-		}
-		wp.AddField(k, v)
 		nf++
 	}
 	if nf == 0 {

@@ -1,0 +1,7 @@
+from(bucket: "tanks/autogen")
+  |> range(start: 1969-12-31T23:59:59.999999999Z, stop: 1970-01-01T00:00:00.000000001Z)
+  |> filter(fn: (r) => r._measurement == "tank_level" and r._field == "level")
+  |> filter(fn: (r) => r.site == "plant-a")
+  |> group(columns: ["tank"])
+  |> sort(columns: ["_time"])
+  |> keep(columns: ["_time", "_value", "tank"])

@@ -1,0 +1,7 @@
+from(bucket: "tanks/autogen")
+  |> range(start: 2024-03-01T00:00:00Z, stop: 2024-03-01T01:00:00Z)
+  |> filter(fn: (r) => r._measurement == "lvl \"x\" \${m}" and r._field == "f\\n")
+  |> filter(fn: (r) => r["tank id"] =~ /^(\$\{|\.\*|\/\^\(x\|y\)\$\/|a\\,b|a\\\\|back\\slash|dbl\\\\back|dollar\$\{x\}|end\\|new\x{a}line|q"uote|sl\/ash|sp ace,comma=eq|tab\x{9}in|ünï€)$/ and r["and"] == "a\"b" and r["si/te"] == "\${site}")
+  |> group(columns: ["tank id"])
+  |> sort(columns: ["_time"])
+  |> keep(columns: ["_time", "_value", "tank id"])
