@@ -209,8 +209,14 @@ func (s *State) classifyShift(f *Finding, now time.Time, opt Options, run int) {
 	}
 	mk := MannKendallCorrected(tt, y)
 	ts := TheilSen(tt, y, 0.95)
-	gradual := shape.RampGain > shape.StepGain && mk.P < opt.TrendAlpha && len(post) >= 8 &&
+	// Gradual: a significant monotone trend after the onset that a ramp
+	// explains better than a step, or an onset so poorly located (profile
+	// interval wider than 4 drains) that no step is evident while a ramp
+	// fits about as well (within one log-likelihood unit).
+	trend := shape.RampGain > shape.StepGain && mk.P < opt.TrendAlpha && len(post) >= 8 &&
 		sgn(ts.Slope) == sgn(shape.RampSlope) && sgn(mk.S) == sgn(shape.RampSlope)
+	vague := cp.Hi-cp.Lo > 4 && shape.RampGain >= shape.StepGain-1 && sgn(shape.RampSlope) == sgn(cp.Shift)
+	gradual := trend || vague
 	current := 0.0
 	if gradual {
 		f.Subtype = SubGradual

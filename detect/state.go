@@ -323,9 +323,9 @@ func (s *State) chartARL0(opt Options) float64 {
 // AddIdle adds one idle-period fit (in time order; repeats are ignored).
 // Its leak constant feeds a one-sided CUSUM on the leak score
 // z = LeakKM25s / LeakKSEM25s (k = 0.5, clipped to ±4); its noise, spikes
-// and flat run feed the sensor checks.
-func (s *State) AddIdle(f model.IdleFit, opt Options) {
-	opt = opt.withDefaults()
+// and flat run feed the sensor checks. The options are accepted for symmetry
+// with AddFit; nothing recorded here depends on them.
+func (s *State) AddIdle(f model.IdleFit, _ Options) {
 	if f.EndNs <= s.LastIdleNs || f.EndNs < s.EpochNs {
 		return
 	}

@@ -4,9 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"slices"
 	"strings"
-	"time"
 
 	"drainsight/model"
 )
@@ -80,7 +78,8 @@ func (o StudyOptions) withDefaults() StudyOptions {
 // had the right kind (and subtype for restrictions), and the median delay of
 // a CUSUM told the true shift in advance (k = δ/2 with δ the full shift in
 // units of the true scatter, true baseline, same in-control ARL, started at
-// the onset). For the healthy row: false findings per tank-year.
+// the onset; not given for the gradual fault, which has no single shift).
+// For the healthy row: false findings per tank-year.
 type StudyRow struct {
 	Fault             string
 	MagnitudePct      float64
@@ -214,7 +213,7 @@ func studyCell(opt StudyOptions, fault string, m float64, cell uint64) StudyRow 
 		ok := delta / 2
 		oh := cusumH(ok, s.chartARL0(dopt)) // rounded ARL0 keeps the cache small
 		var oc float64
-		oracleDone := false
+		oracleDone := fault == FaultRestrictionGradual // no single shift to tell it
 		drainsAtOnset := -1
 		nextEval := studyStart + int64(nsPerDay)
 		for st.tNs < end {
@@ -343,6 +342,3 @@ func fmtNum(x float64) string {
 	}
 	return fmt.Sprintf("%.1f", x)
 }
-
-var _ = slices.Sort[[]float64]
-var _ = time.Second

@@ -231,16 +231,5 @@ func median(x []float64) float64 {
 	return 0.5 * (s[n/2-1] + s[n/2])
 }
 
-// madScale returns 1.4826 × median |x - median(x)|, the MAD scaled to the
-// standard deviation of normal data.
-func madScale(x []float64) float64 {
-	m := median(x)
-	d := make([]float64, len(x))
-	for i, v := range x {
-		d[i] = math.Abs(v - m)
-	}
-	return 1.4826 * median(d)
-}
-
 // normQuantile is Φ^{-1}(p).
 func normQuantile(p float64) float64 { return -math.Sqrt2 * math.Erfcinv(2*p) }
