@@ -374,11 +374,6 @@ func BenchmarkFitDrain(b *testing.B) {
 	b.Run("vertical/datum-unknown/dt=1", func(b *testing.B) { benchDrain(b, "vertical", 1, true) })
 }
 
-func BenchmarkAccuracyStudy(b *testing.B) {
-	for b.Loop() {
-		AccuracyStudy(AccuracyOptions{Replicates: 10, NoiseM: []float64{0.002}, SampleS: []float64{10}})
-	}
-}
 func TestTQuantileExpansion(t *testing.T) {
 	for _, df := range []int{200, 250, 500, 1000, 5000, 100000} {
 		want := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(df)}.Quantile(0.975)
