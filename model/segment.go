@@ -165,6 +165,8 @@ type Segmenter struct {
 	maxdq      deque
 	mindq      deque
 	knee       int
+	idleKeep   int     // idle start to resume if the current fall/rise proves slow; -1: none
+	wj         int     // sample about Window before the current one, in a fall/rise
 	ext        float64 // running extreme since the knee (min for a fall, max for a rise)
 	iExt       int
 	mark       float64
@@ -222,6 +224,7 @@ func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
 	s.noise.init()
 	s.setSigma()
 	s.cutAt = math.MaxInt64
+	s.idleKeep = -1
 	return s
 }
 
@@ -456,6 +459,9 @@ func (s *Segmenter) CommittedNs() int64 {
 		}
 	default:
 		pend = s.hist[s.knee-s.base].t
+		if s.idleKeep >= 0 && s.idleKeep < s.done {
+			pend = min(pend, s.hist[s.idleKeep-s.base].t)
+		}
 	}
 	if len(s.queue) > 0 {
 		pend = min(pend, s.queue[0].RawStartNs)
@@ -497,6 +503,9 @@ func (s *Segmenter) compact() {
 		}
 	default:
 		keep = min(keep, s.knee)
+		if s.idleKeep >= 0 {
+			keep = min(keep, s.idleKeep)
+		}
 	}
 	drop := keep - s.base
 	if drop < 1024 || drop < len(s.hist)/2 {

@@ -24,13 +24,18 @@ func (s *Segmenter) step(i int) {
 			s.mark, s.iMark = y, i
 			s.setTimeout()
 		}
+		if s.slow(i, t, y) {
+			return
+		}
 		if y > s.ext+s.trig {
 			k := s.kneeUp(s.iExt, i)
+			s.closeIdle()
 			s.finishDrain(s.knee, s.iMark, k-1)
 			s.beginRise(k, i)
 			return
 		}
 		if t-s.tAt(s.iMark) > s.timeoutNs {
+			s.closeIdle()
 			s.finishDrain(s.knee, s.iMark, i)
 			s.toQuiet(s.iMark+1, i)
 		}
@@ -42,13 +47,18 @@ func (s *Segmenter) step(i int) {
 			s.mark, s.iMark = y, i
 			s.setTimeout()
 		}
+		if s.slow(i, t, y) {
+			return
+		}
 		if y < s.ext-s.trig {
 			k := s.kneeDown(s.iExt, i)
+			s.closeIdle()
 			s.finishFill(s.knee, s.iMark)
 			s.beginFall(k, i)
 			return
 		}
 		if t-s.tAt(s.iMark) > s.timeoutNs {
+			s.closeIdle()
 			s.finishFill(s.knee, s.iMark)
 			s.toQuiet(s.iMark+1, i)
 		}
@@ -73,14 +83,14 @@ func (s *Segmenter) quietStep(i int, t int64, y float64) {
 	}
 	if m := s.maxdq.front(); y < s.yAt(m)-s.trig {
 		k := s.kneeDown(m, i)
-		s.endIdle(k - 1)
 		s.beginFall(k, i)
+		s.idleKeep = s.idleStart
 		return
 	}
 	if m := s.mindq.front(); y > s.yAt(m)+s.trig {
 		k := s.kneeUp(m, i)
-		s.endIdle(k - 1)
 		s.beginRise(k, i)
+		s.idleKeep = s.idleStart
 		return
 	}
 	if s.metered && s.hist[i-s.base].q > 0 {
@@ -153,8 +163,38 @@ func (s *Segmenter) plateauBefore(m int) float64 {
 	return median(s.scratch)
 }
 
+// closeIdle ends the idle stretch that was under way when the current fall
+// or rise opened: the event is real.
+func (s *Segmenter) closeIdle() {
+	if s.idleKeep >= 0 {
+		s.idleStart = s.idleKeep
+		s.idleKeep = -1
+		s.endIdle(s.knee - 1)
+	}
+}
+
+// slow abandons a fall (rise) that has moved less than twice the trigger
+// level over the last Window and less than MinDropM in all: a leak, a drift or a
+// trickle, not a drain or a fill. The idle stretch it interrupted goes on.
+func (s *Segmenter) slow(i int, t int64, y float64) bool {
+	if t-s.tAt(s.knee) < s.winNs || s.idleKeep < 0 {
+		return false
+	}
+	for s.tAt(s.wj+1) <= t-s.winNs {
+		s.wj++
+	}
+	if math.Abs(s.yAt(s.wj)-y) >= 2*s.trig || math.Abs(s.yAt(s.knee)-s.ext) >= s.minDrop() {
+		return false
+	}
+	keep := s.idleKeep
+	s.toQuiet(max(s.stateStart, s.idleKeep, s.wj), i)
+	s.idleStart, s.idleKeep = keep, -1
+	s.setCut()
+	return true
+}
+
 func (s *Segmenter) beginFall(k, i int) {
-	s.state, s.knee = stFall, k
+	s.state, s.knee, s.wj, s.idleKeep = stFall, k, k, -1
 	s.ext, s.iExt = s.yAt(k), k
 	s.mark, s.iMark = s.yAt(k), k
 	for j := k + 1; j <= i; j++ {
@@ -170,7 +210,7 @@ func (s *Segmenter) beginFall(k, i int) {
 }
 
 func (s *Segmenter) beginRise(k, i int) {
-	s.state, s.knee = stRise, k
+	s.state, s.knee, s.wj, s.idleKeep = stRise, k, k, -1
 	s.ext, s.iExt = s.yAt(k), k
 	s.mark, s.iMark = s.yAt(k), k
 	for j := k + 1; j <= i; j++ {
@@ -234,8 +274,10 @@ func (s *Segmenter) toQuiet(f, i int) {
 func (s *Segmenter) breakAt(i int) {
 	switch s.state {
 	case stFall:
+		s.closeIdle()
 		s.finishDrain(s.knee, s.iMark, i-1)
 	case stRise:
+		s.closeIdle()
 		s.finishFill(s.knee, s.iMark)
 	default:
 		s.endIdle(i - 1)
@@ -328,6 +370,8 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 		s.stats.RejectedSmall++
 		return
 	}
+	k = s.refineStart(k, e)
+	e = s.refineEnd(k, e)
 	tk := s.tAt(k)
 	drop := s.yAt(k) - s.yAt(e)
 	if s.tAt(e)-tk < s.minDurNs || drop < s.minDrop() {
@@ -337,7 +381,7 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 	// plateau median
 	p := math.NaN()
 	s.scratch = s.scratch[:0]
-	for j := e + 1; j <= d; j++ {
+	for j := max(e+1, d-4096); j <= d; j++ {
 		if !s.hist[j-s.base].k {
 			s.scratch = append(s.scratch, s.hist[j-s.base].r)
 		}
@@ -412,6 +456,69 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 	}
 	g.Spikes, g.GapCount = sp, gaps
 	s.queue = append(s.queue, g)
+}
+
+// localRate is the fall rate (m/s) of the level from sample j to j+w.
+func (s *Segmenter) localRate(j, w int) float64 {
+	return (s.yAt(j) - s.yAt(j+w)) / (float64(s.tAt(j+w)-s.tAt(j)) * 1e-9)
+}
+
+// refineStart moves the start of the fall [k, e] past a slow leading fall
+// (a leak or drift that opened the candidate before the valve did): the
+// drain starts where the local fall rate, over windows of w = n/16 samples,
+// first reaches a quarter of its largest value; the knee is then the last
+// sample within 1.5 σ of the level there.
+func (s *Segmenter) refineStart(k, e int) int {
+	// twice: the second pass uses a window scaled to the fall itself
+	for range 2 {
+		w := max(3, (e-k)/16)
+		if e-k < 4*w {
+			break
+		}
+		rmax := 0.0
+		for j := k; j+w <= e; j++ {
+			rmax = max(rmax, s.localRate(j, w))
+		}
+		j := k
+		for j+w <= e && s.localRate(j, w) < 0.25*rmax {
+			j++
+		}
+		if j <= k+w {
+			break
+		}
+		thr := s.yAt(j) - kneeSigmas*s.sigma
+		kn := j
+		for i := j; i <= j+w; i++ {
+			if s.yAt(i) >= thr {
+				kn = i
+			}
+		}
+		k = kn
+	}
+	return k
+}
+
+// refineEnd cuts a slow tail off the fall (a leak after the valve closed,
+// or the last creep onto the empty plateau): the fall ends where the local
+// rate last reaches 3 % of its largest value. The samples cut off join
+// the plateau.
+func (s *Segmenter) refineEnd(a, b int) int {
+	w := max(3, (b-a)/16)
+	if b-a < 4*w {
+		return b
+	}
+	rmax := 0.0
+	for j := a; j+w <= b; j++ {
+		rmax = max(rmax, s.localRate(j, w))
+	}
+	j := b - w
+	for j > a && s.localRate(j, w) < 0.03*rmax {
+		j--
+	}
+	if j+w >= b-w {
+		return b
+	}
+	return j + w
 }
 
 // kRatio is K over the second half of [a, b] divided by K over the first,

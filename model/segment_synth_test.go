@@ -146,3 +146,11 @@ func standardDay() *synth {
 	b.idle(2 * 3600)
 	return b
 }
+
+// leakIdle is an idle period with the level falling at rateMs (a shell leak).
+func (b *synth) leakIdle(d, rateMs float64) {
+	h0, t0 := b.h, b.t
+	b.ph = append(b.ph, phase{t0, t0 + d, func(t float64) float64 { return h0 - rateMs*(t-t0) }, 0})
+	b.t += d
+	b.h = h0 - rateMs*d
+}

@@ -65,10 +65,11 @@ func TestSegmentDrainsTable(t *testing.T) {
 				if got := secs(g.RawStartNs); math.Abs(got-tr.start) > tolS {
 					t.Errorf("drain %d start: got %.1f s, want %.1f s ± %.1f", i, got, tr.start, tolS)
 				}
-				// end: within 3 samples plus the time of the last 4 σ of head
+				// end: within 3 samples plus the time of the last 4 σ of head, or of
+				// the last 0.5 % of the drop on the empty tail (trimmed anyway)
 				tolE := 3 * c.dt
 				if tr.complete {
-					tolE += tailTime(b, 4*c.sigma)
+					tolE += tailTime(b, max(4*c.sigma, 0.005*tr.h0))
 				} else {
 					tolE += 4 * c.sigma / (b.kM25s * math.Sqrt(tr.h1) / b.aM2)
 				}
@@ -370,6 +371,32 @@ func TestSegmentExactlyOnce(t *testing.T) {
 				t.Errorf("cut %.0f h: segment %d: got %v at %.0f s, want %v at %.0f s", secs(cut)/3600, i,
 					all[i].Kind, secs(all[i].RawStartNs), ref[i].Kind, secs(ref[i].RawStartNs))
 			}
+		}
+	}
+}
+
+// TestSegmentLeakBeforeDrain: a slow leak (10 mm/h) during the idle period
+// before a drain must not drag the drain's start back into the idle period.
+func TestSegmentLeakBeforeDrain(t *testing.T) {
+	b := newSynth(2)
+	b.leakIdle(4*3600, 0.010/3600)
+	b.drainTo(0)
+	b.idle(2 * 3600)
+	b.fill(1.5, 2e-3)
+	b.leakIdle(4*3600, 0.010/3600)
+	b.drainTo(0.6)
+	b.leakIdle(3*3600, 0.010/3600)
+	s := b.sample(20, 0.001, rand.New(rand.NewPCG(9, 9)))
+	dr := drainsOf(SegmentSeries(synthTank(), s, SegmentOptions{Settle: -1}))
+	if got, want := len(dr), 2; got != want {
+		t.Fatalf("drains: got %d, want %d", got, want)
+	}
+	for i, g := range dr {
+		if got, want := secs(g.RawStartNs), b.truth[i].start; math.Abs(got-want) > 60 {
+			t.Errorf("drain %d start: got %.0f s, want %.0f s ± 60", i, got, want)
+		}
+		if got, want := g.Complete, b.truth[i].complete; got != want {
+			t.Errorf("drain %d complete: got %v, want %v", i, got, want)
 		}
 	}
 }
