@@ -143,3 +143,27 @@ func TestWebhookRetriesAndHidesURL(t *testing.T) {
 		t.Errorf("error %v: want an error without the secret", err)
 	}
 }
+
+func TestCommandNotifierGetsJSON(t *testing.T) {
+	dir := t.TempDir()
+	out := filepath.Join(dir, "got.json")
+	n := CommandNotifier{Argv: []string{"sh", "-c", "cat > " + out}}
+	evs := []Event{{Status: StatusNew, At: t0, Finding: finding("T9", "tank_leak", "", 0)}}
+	if err := n.Notify(context.Background(), evs); err != nil {
+		t.Fatal(err)
+	}
+	var got webhookBody
+	b, err := os.ReadFile(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, &got); err != nil {
+		t.Fatal(err)
+	}
+	if len(got.Events) != 1 || got.Events[0].Tank != "T9" || got.Events[0].Kind != "tank_leak" {
+		t.Errorf("command got %+v", got)
+	}
+	if err := (CommandNotifier{Argv: []string{"false"}}).Notify(context.Background(), evs); err == nil {
+		t.Error("a failing command must return an error")
+	}
+}

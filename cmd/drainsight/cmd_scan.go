@@ -1,0 +1,303 @@
+package main
+
+import (
+	"cmp"
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"log/slog"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"time"
+
+	"drainsight/alert"
+	"drainsight/config"
+	"drainsight/model"
+)
+
+const scanAbout = `One pass of the job: read every tank's level history (files, or InfluxDB
+from each tank's checkpoint), cut out the gravity drains, fit the outlet
+constant K of each, update each tank's statistics in the state file, and
+report findings. Writes DIR/events.jsonl (the drains fitted in this pass) and
+DIR/findings.jsonl (every finding with its status new, ongoing or cleared),
+notifies new and cleared findings, and prints a short summary.
+
+Running scan again over the same data fits nothing twice and repeats no alert.
+Exit status: 0 done, 1 error (a tank failed), 2 bad usage, 3 with
+--fail-on-findings when a finding is active.`
+
+// runScan implements "drainsight scan".
+func runScan(ctx context.Context, e *env, args []string) error {
+	fs := newFlags(e, "scan", "scan --config FILE [--out DIR] [flags]", scanAbout)
+	cfgPath := fs.String("config", "", "configuration file (required)")
+	outDir := fs.String("out", "", "output directory (default: outputs.directory of the config)")
+	statePath := fs.String("state", "", "state file (default: outputs.state_file of the config)")
+	nowFlag := fs.String("now", "", "evaluation time, RFC 3339 (default: newest sample for files, the clock for InfluxDB)")
+	failOn := fs.Bool("fail-on-findings", false, "exit with status 3 when a finding is active")
+	verbose := fs.Bool("v", false, "debug logging")
+	if err := parseFlags(e, fs, args); err != nil {
+		return err
+	}
+	if *cfgPath == "" {
+		return &usageError{"scan: --config is required"}
+	}
+	now, err := parseNow(*nowFlag)
+	if err != nil {
+		return err
+	}
+	log := newLogger(e.stderr, *verbose)
+	cfg, err := config.Load(*cfgPath)
+	if err != nil {
+		return err
+	}
+	res, err := scanOnce(ctx, e, cfg, *outDir, *statePath, scanOptions{now: now}, log)
+	if err != nil {
+		return err
+	}
+	if err := errTankFailures(res.failed()); err != nil {
+		return err
+	}
+	if *failOn {
+		for _, ev := range res.events {
+			if ev.Status != alert.StatusCleared {
+				return errFindings
+			}
+		}
+	}
+	return nil
+}
+
+// scanOnce runs one pass of cfg and writes the outputs and the summary.
+func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath string, opt scanOptions, log *slog.Logger) (*scanResult, error) {
+	if outDir == "" {
+		outDir = cfg.Outputs.Directory
+	}
+	if err := os.MkdirAll(outDir, 0o755); err != nil {
+		return nil, err
+	}
+	j, err := openJob(cfg, statePath, log)
+	if err != nil {
+		return nil, err
+	}
+	defer j.Close()
+	start := time.Now()
+	res, err := j.scan(ctx, opt)
+	if err != nil {
+		return res, err
+	}
+	if err := writeOutputs(outDir, res); err != nil {
+		return res, err
+	}
+	notifyAll(ctx, cfg, log, res.events)
+	printSummary(e.stdout, res, outDir, time.Since(start))
+	return res, nil
+}
+
+func parseNow(s string) (time.Time, error) {
+	if s == "" {
+		return time.Time{}, nil
+	}
+	t, err := time.Parse(time.RFC3339, s)
+	if err != nil {
+		return time.Time{}, &usageError{fmt.Sprintf("--now %q: want RFC 3339, e.g. 2026-03-01T06:00:00Z", s)}
+	}
+	return t.UTC(), nil
+}
+
+func newLogger(w io.Writer, verbose bool) *slog.Logger {
+	lvl := slog.LevelInfo
+	if verbose {
+		lvl = slog.LevelDebug
+	}
+	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: lvl}))
+}
+
+// eventRecord is one line of events.jsonl (schema documented in the README).
+type eventRecord struct {
+	Tank          string    `json:"tank"`
+	Start         time.Time `json:"start"`
+	End           time.Time `json:"end"`
+	Samples       int       `json:"samples"`
+	HeadStartM    float64   `json:"head_start_m"`
+	HeadEndM      float64   `json:"head_end_m"`
+	KM25s         float64   `json:"k_m25_s"`
+	KSE           float64   `json:"k_se"`
+	KLo95         float64   `json:"k_lo95"`
+	KHi95         float64   `json:"k_hi95"`
+	CdAM2         float64   `json:"cd_a_m2"`
+	Cd            *float64  `json:"cd"`
+	R2            float64   `json:"r2"`
+	Quality       string    `json:"quality"`
+	QualityReason string    `json:"quality_reason,omitempty"`
+	Method        string    `json:"method"`
+	Exponent      float64   `json:"exponent"`
+	SigmaM        float64   `json:"sigma_m"`
+	Complete      bool      `json:"complete"`
+}
+
+// findingRecord is one line of findings.jsonl (schema documented in the README).
+type findingRecord struct {
+	Tank         string     `json:"tank"`
+	Kind         string     `json:"kind"`
+	Subtype      string     `json:"subtype,omitempty"`
+	Status       string     `json:"status"`
+	DetectedAt   time.Time  `json:"detected_at"`
+	Onset        *time.Time `json:"onset"`
+	OnsetLo      *time.Time `json:"onset_lo,omitempty"`
+	OnsetHi      *time.Time `json:"onset_hi,omitempty"`
+	MagnitudePct float64    `json:"magnitude_pct"`
+	Statistic    string     `json:"statistic"`
+	Value        float64    `json:"value"`
+	Threshold    float64    `json:"threshold"`
+	PValue       float64    `json:"p_value"`
+	Evidence     string     `json:"evidence"`
+	ForecastDate *time.Time `json:"forecast_date,omitempty"`
+}
+
+// sig rounds x to 6 significant digits (outputs stay stable across
+// platforms and readable); non-finite values become 0.
+func sig(x float64) float64 {
+	if math.IsNaN(x) || math.IsInf(x, 0) || x == 0 {
+		return 0
+	}
+	d := 5 - int(math.Floor(math.Log10(math.Abs(x))))
+	p := math.Pow(10, float64(d))
+	return math.Round(x*p) / p
+}
+
+func optTime(t time.Time) *time.Time {
+	if t.IsZero() {
+		return nil
+	}
+	t = t.UTC()
+	return &t
+}
+
+func toEventRecord(f model.Fit) eventRecord {
+	r := eventRecord{
+		Tank: f.Tank, Start: time.Unix(0, f.StartNs).UTC(), End: time.Unix(0, f.EndNs).UTC(),
+		Samples: f.N, HeadStartM: sig(f.H0M), HeadEndM: sig(f.H1M), KM25s: sig(f.KM25s), KSE: sig(f.KSEM25s),
+		KLo95: sig(f.KLo95M25s), KHi95: sig(f.KHi95M25s), CdAM2: sig(f.CdAM2), R2: sig(f.R2),
+		Quality: string(f.Quality), QualityReason: f.QualityReason, Method: f.Method,
+		Exponent: sig(f.Exponent), SigmaM: sig(f.SigmaM), Complete: f.Complete,
+	}
+	if !math.IsNaN(f.Cd) && f.Cd > 0 {
+		cd := sig(f.Cd)
+		r.Cd = &cd
+	}
+	return r
+}
+
+func toFindingRecord(ev alert.Event) findingRecord {
+	f := ev.Finding
+	r := findingRecord{
+		Tank: f.Tank, Kind: f.Kind, Subtype: f.Subtype, Status: string(ev.Status), DetectedAt: f.DetectedAt.UTC(),
+		Onset: optTime(f.Onset), OnsetLo: optTime(f.OnsetLo), OnsetHi: optTime(f.OnsetHi),
+		MagnitudePct: sig(f.MagnitudePct), Statistic: f.Statistic, Value: sig(f.Value), Threshold: sig(f.Threshold),
+		PValue: sig(f.PValue), Evidence: f.Evidence,
+	}
+	if f.Forecast != nil {
+		r.ForecastDate = optTime(f.Forecast.Date)
+	}
+	return r
+}
+
+// writeOutputs writes events.jsonl and findings.jsonl atomically (a
+// temporary file renamed into place), so a reader never sees half a file.
+func writeOutputs(dir string, res *scanResult) error {
+	fits := res.fits()
+	slices.SortFunc(fits, func(a, b model.Fit) int {
+		return cmp.Or(cmp.Compare(a.Tank, b.Tank), cmp.Compare(a.StartNs, b.StartNs))
+	})
+	var evs []any
+	for _, f := range fits {
+		evs = append(evs, toEventRecord(f))
+	}
+	if err := writeJSONL(filepath.Join(dir, "events.jsonl"), evs); err != nil {
+		return err
+	}
+	var fr []any
+	for _, ev := range res.events {
+		fr = append(fr, toFindingRecord(ev))
+	}
+	return writeJSONL(filepath.Join(dir, "findings.jsonl"), fr)
+}
+
+func writeJSONL(path string, recs []any) error {
+	tmp, err := os.CreateTemp(filepath.Dir(path), ".tmp-"+filepath.Base(path))
+	if err != nil {
+		return err
+	}
+	defer os.Remove(tmp.Name())
+	enc := json.NewEncoder(tmp)
+	enc.SetEscapeHTML(false)
+	for _, r := range recs {
+		if err := enc.Encode(r); err != nil {
+			tmp.Close()
+			return fmt.Errorf("write %s: %w", path, err)
+		}
+	}
+	if err := tmp.Close(); err != nil {
+		return err
+	}
+	return os.Rename(tmp.Name(), path)
+}
+
+// notifyAll sends new and cleared findings to every configured notifier. A
+// notifier that fails is logged; the findings stay in the state and in
+// findings.jsonl.
+func notifyAll(ctx context.Context, cfg *config.Config, log *slog.Logger, evs []alert.Event) {
+	send := alert.Notifiable(evs)
+	if len(send) == 0 {
+		return
+	}
+	var ns []alert.Notifier
+	if cfg.Outputs.Alert.Log {
+		ns = append(ns, alert.LogNotifier{Logger: log})
+	}
+	url := cfg.Outputs.Alert.WebhookURL
+	if env := cfg.Outputs.Alert.WebhookURLEnv; env != "" {
+		url = os.Getenv(env)
+	}
+	if url != "" {
+		ns = append(ns, alert.WebhookNotifier{URL: url})
+	}
+	if len(cfg.Outputs.Alert.Command) > 0 {
+		ns = append(ns, alert.CommandNotifier{Argv: cfg.Outputs.Alert.Command})
+	}
+	for _, n := range ns {
+		if err := n.Notify(ctx, send); err != nil {
+			log.Error("notification failed", "notifier", fmt.Sprintf("%T", n), "err", err)
+		}
+	}
+}
+
+func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duration) {
+	var samples int64
+	drains, fits := 0, 0
+	for _, o := range res.outcomes {
+		samples += o.samples
+		drains += o.drains
+		fits += len(o.fits)
+	}
+	fmt.Fprintf(w, "Scanned %d tanks at %s: %d samples, %d drains, %d fitted (%s).\n",
+		len(res.outcomes), res.now.Format(time.RFC3339), samples, drains, fits, took.Round(time.Millisecond))
+	if p := res.ingest.Problems(); p > 0 {
+		fmt.Fprintf(w, "Input problems: %d (see the log for file:line examples).\n", p)
+	}
+	for _, o := range res.failed() {
+		fmt.Fprintf(w, "FAILED %s: %v\n", o.tank, o.err)
+	}
+	if len(res.events) == 0 {
+		fmt.Fprintln(w, "No findings.")
+	} else {
+		fmt.Fprintln(w)
+		alert.WriteTable(w, res.events)
+		fmt.Fprintln(w)
+		fmt.Fprintln(w, alert.Caution)
+	}
+	fmt.Fprintf(w, "Outputs: %s, %s\n", filepath.Join(outDir, "events.jsonl"), filepath.Join(outDir, "findings.jsonl"))
+}

@@ -1,0 +1,34 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"time"
+
+	"drainsight/ingest/influx"
+)
+
+// demoLoader writes the demo plant's readings into an InfluxDB.
+type demoLoader struct{ c *influx.Client }
+
+func newDemoLoader(url, bucket, org, token string) (*demoLoader, error) {
+	c, err := influx.New(influx.Conn{URL: url, Bucket: bucket, Org: org, Token: token}, influx.Options{})
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	if err := c.Check(ctx); err != nil {
+		c.Close()
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	return &demoLoader{c: c}, nil
+}
+
+// load writes one tank's readings (inflow is not loaded: the InfluxDB source
+// reads the level field only).
+func (l *demoLoader) load(ctx context.Context, tank string, timesNs []int64, readings, _ []float64) error {
+	return l.c.WriteLevels(ctx, "tank_level", "level", "tank", tank, timesNs, readings)
+}
+
+func (l *demoLoader) Close() { l.c.Close() }

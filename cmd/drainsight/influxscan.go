@@ -1,0 +1,180 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"time"
+
+	"drainsight/detect"
+	"drainsight/ingest/influx"
+	"drainsight/model"
+)
+
+// firstScanHistory is how far back a tank's first scan reads when it has no
+// checkpoint; use backfill for more.
+const firstScanHistory = 7 * 24 * time.Hour
+
+// influxTank is one InfluxDB tank during a pass.
+type influxTank struct {
+	p      *plan
+	run    *tankRun
+	fromNs int64
+	buf    model.Series
+	out    tankOutcome
+	failed bool
+}
+
+// scanInflux pulls each site's tanks window by window (one query per
+// window), feeds the samples to the tanks' segmenters and commits each tank
+// after every window, so an interrupted pass resumes where it stopped and a
+// failed window leaves the checkpoints of its tanks untouched.
+func (j *job) scanInflux(ctx context.Context, plans []*plan, now time.Time, opt scanOptions) []tankOutcome {
+	bySite := map[string][]*plan{}
+	var sites []string
+	for _, p := range plans {
+		if _, ok := bySite[p.cfg.Site]; !ok {
+			sites = append(sites, p.cfg.Site)
+		}
+		bySite[p.cfg.Site] = append(bySite[p.cfg.Site], p)
+	}
+	var outs []tankOutcome
+	for _, site := range sites {
+		outs = append(outs, j.scanSite(ctx, site, bySite[site], now, opt)...)
+	}
+	return outs
+}
+
+func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now time.Time, opt scanOptions) []tankOutcome {
+	site := j.cfg.Site(siteID)
+	c := j.clients[siteID]
+	fail := func(err error) []tankOutcome {
+		outs := make([]tankOutcome, len(plans))
+		for i, p := range plans {
+			outs[i] = tankOutcome{tank: p.cfg.ID, err: err}
+		}
+		return outs
+	}
+	if site == nil || site.Influx == nil || c == nil {
+		return fail(fmt.Errorf("site %q has no influx settings", siteID))
+	}
+	ix := site.Influx
+	src, err := c.Source(influx.SeriesSpec{Measurement: ix.Measurement, Field: ix.Field, TankTag: ix.TankTag})
+	if err != nil {
+		return fail(err)
+	}
+	untilNs := now.Add(-ix.SettleDelay).UnixNano()
+	if opt.untilNs != 0 {
+		untilNs = min(untilNs, opt.untilNs)
+	}
+	tanks := make([]*influxTank, 0, len(plans))
+	byID := map[string]*influxTank{}
+	startNs := int64(math.MaxInt64)
+	var ids []string
+	for _, p := range plans {
+		run, from, err := openTankRun(j.st, p, j.log)
+		t := &influxTank{p: p, run: run, out: tankOutcome{tank: p.cfg.ID}}
+		switch {
+		case err != nil:
+			t.out.err, t.failed = err, true
+		case !run.hadCP && opt.sinceNs != 0:
+			from = opt.sinceNs
+		case !run.hadCP:
+			from = now.Add(-firstScanHistory).UnixNano()
+		}
+		if !t.failed {
+			t.fromNs = from
+			startNs = min(startNs, from)
+			ids = append(ids, p.cfg.ID)
+			byID[p.cfg.ID] = t
+		}
+		tanks = append(tanks, t)
+	}
+	windows := influx.Windows(startNs, untilNs, ix.QueryWindow)
+	for wi, w := range windows {
+		if len(ids) == 0 || ctx.Err() != nil {
+			break
+		}
+		_, err := src.Pull(ctx, ids, w[0], w[1], func(tank string, tNs int64, v float64) {
+			t := byID[tank]
+			if t == nil || tNs < t.fromNs {
+				return
+			}
+			h := t.p.conv.Sensor.HeadM(v, t.p.conv.OutletElevM)
+			if n := t.buf.Len(); n > 0 && tNs <= t.buf.TimeNs[n-1] || math.IsNaN(h) {
+				return
+			}
+			t.buf.Append(tNs, h)
+		})
+		if err != nil {
+			// The window failed: nothing of it is committed; every tank of
+			// the site keeps its checkpoint and reports the error.
+			for _, id := range ids {
+				t := byID[id]
+				t.out.err, t.failed = fmt.Errorf("window %s: %w", time.Unix(0, w[0]).UTC().Format(time.RFC3339), err), true
+			}
+			break
+		}
+		for _, id := range ids {
+			t := byID[id]
+			t.buf.Tank = id
+			t.run.push(&t.buf)
+			t.buf = model.Series{}
+			final := wi == len(windows)-1
+			fits, err := t.run.commit(final, now.UnixNano())
+			if err != nil {
+				t.out.err, t.failed = err, true
+				continue
+			}
+			t.out.fits = append(t.out.fits, fits...)
+			if len(fits) > 0 {
+				if err := c.WriteFits(ctx, ix.FitsMeasurement, fits, siteID); err != nil {
+					j.log.Warn("fit write-back failed", "tank", id, "err", err)
+				}
+			}
+		}
+		ids = ids[:0]
+		for _, t := range tanks {
+			if !t.failed {
+				ids = append(ids, t.p.cfg.ID)
+			}
+		}
+		if opt.progress != nil {
+			opt.progress(wi+1, len(windows), siteID)
+		}
+	}
+	outs := make([]tankOutcome, 0, len(tanks))
+	for _, t := range tanks {
+		if t.run != nil {
+			t.out.samples, t.out.drains = t.run.total, t.run.drains
+		}
+		if t.out.err == nil && t.run != nil {
+			t.out.findings = t.run.det.Evaluate(now, t.p.detOpt)
+			j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, t.out.findings)
+		}
+		outs = append(outs, t.out)
+	}
+	return outs
+}
+
+// writeFindings writes the tank's active findings back, stamped at the end
+// of the tank's last accepted drain so that re-writing overwrites.
+func (j *job) writeFindings(ctx context.Context, c *influx.Client, meas, site string, det *detect.State, fs []detect.Finding) {
+	if len(fs) == 0 || det.LastFitNs == 0 {
+		return
+	}
+	pts := make([]influx.Point, 0, len(fs))
+	for _, f := range fs {
+		pts = append(pts, influx.Point{
+			Measurement: meas,
+			Tags:        map[string]string{"tank": f.Tank, "site": site, "kind": f.Kind},
+			Fields: map[string]float64{"magnitude_pct": f.MagnitudePct, "value": f.Value,
+				"threshold": f.Threshold, "p_value": f.PValue},
+			StringFields: map[string]string{"subtype": f.Subtype, "statistic": f.Statistic, "evidence": f.Evidence},
+			TimeNs:       det.LastFitNs,
+		})
+	}
+	if err := c.WritePoints(ctx, pts); err != nil {
+		j.log.Warn("finding write-back failed", "site", site, "err", err)
+	}
+}

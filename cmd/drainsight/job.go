@@ -1,0 +1,358 @@
+package main
+
+import (
+	"cmp"
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"slices"
+	"strings"
+	"sync"
+	"time"
+
+	"drainsight/alert"
+	"drainsight/config"
+	"drainsight/detect"
+	"drainsight/ingest"
+	"drainsight/ingest/influx"
+	"drainsight/model"
+	"drainsight/store"
+)
+
+// job is one configured plant: its plans, its state and its connections.
+type job struct {
+	cfg     *config.Config
+	plans   []*plan
+	st      *store.Store
+	log     *slog.Logger
+	clients map[string]*influx.Client // per site id, only sites with InfluxDB
+	workers int
+}
+
+// openJob loads nothing itself: it wires a loaded config into a job and
+// opens the state store (with a lock timeout) and the InfluxDB clients.
+func openJob(cfg *config.Config, statePath string, log *slog.Logger) (*job, error) {
+	plans, err := buildPlans(cfg)
+	if err != nil {
+		return nil, err
+	}
+	if statePath == "" {
+		statePath = cfg.Outputs.StateFile
+	}
+	clients, err := openClients(cfg)
+	if err != nil {
+		return nil, err
+	}
+	st, err := store.Open(statePath, 5*time.Second)
+	if err != nil {
+		closeClients(clients)
+		return nil, err
+	}
+	return &job{cfg: cfg, plans: plans, st: st, log: log, clients: clients, workers: 2}, nil
+}
+
+// openClients opens one InfluxDB client per site that has a server; the
+// token is read from its environment variable or file, never from the config.
+func openClients(cfg *config.Config) (map[string]*influx.Client, error) {
+	clients := map[string]*influx.Client{}
+	for _, s := range cfg.Sites {
+		if s.Influx == nil {
+			continue
+		}
+		tok, err := s.Influx.Token()
+		if err == nil {
+			var c *influx.Client
+			c, err = influx.New(influx.Conn{URL: s.Influx.URL, Org: s.Influx.Org, Bucket: s.Influx.Bucket, Token: tok},
+				influx.Options{QueryTimeout: s.Influx.Timeout, WriteTimeout: s.Influx.Timeout})
+			clients[s.ID] = c
+		}
+		if err != nil {
+			closeClients(clients)
+			return nil, fmt.Errorf("site %s: %w", s.ID, err)
+		}
+	}
+	return clients, nil
+}
+
+func closeClients(clients map[string]*influx.Client) {
+	for _, c := range clients {
+		if c != nil {
+			c.Close()
+		}
+	}
+}
+
+// Close releases the store and the clients.
+func (j *job) Close() error {
+	closeClients(j.clients)
+	return j.st.Close()
+}
+
+// scanOptions bound one pass of the job.
+type scanOptions struct {
+	now      time.Time // evaluation time; zero: the newest sample (files) or the clock (InfluxDB)
+	sinceNs  int64     // backfill: start here instead of at the checkpoint (0: checkpoint)
+	untilNs  int64     // backfill: stop here (0: now minus the settle delay)
+	progress func(done, total int, tank string)
+}
+
+// tankOutcome is what one tank gave in one pass.
+type tankOutcome struct {
+	tank     string
+	fits     []model.Fit
+	findings []detect.Finding
+	samples  int64
+	drains   int
+	err      error
+}
+
+// scanResult is what one pass of the job gave.
+type scanResult struct {
+	now      time.Time
+	outcomes []tankOutcome
+	ingest   ingest.Report
+	events   []alert.Event
+}
+
+func (r *scanResult) fits() []model.Fit {
+	var out []model.Fit
+	for _, o := range r.outcomes {
+		out = append(out, o.fits...)
+	}
+	return out
+}
+
+func (r *scanResult) failed() []tankOutcome {
+	var out []tankOutcome
+	for _, o := range r.outcomes {
+		if o.err != nil {
+			out = append(out, o)
+		}
+	}
+	return out
+}
+
+// scan runs one pass: read, segment, fit, commit, detect, then the alert
+// lifecycle. One failing tank is logged, counted and recorded; the others
+// carry on.
+func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
+	res := &scanResult{}
+	var fileTanks, influxTanks []*plan
+	for _, p := range j.plans {
+		if p.cfg.Source.Format == "influx" {
+			influxTanks = append(influxTanks, p)
+		} else {
+			fileTanks = append(fileTanks, p)
+		}
+	}
+	series, rep, readErrs := j.readFiles(ctx, fileTanks)
+	res.ingest = rep
+	if rep.Problems() > 0 {
+		j.log.Warn("input problems", "count", rep.Problems(), "detail", strings.TrimSpace(rep.String()))
+	}
+	now := opt.now
+	if now.IsZero() {
+		if len(influxTanks) > 0 {
+			now = time.Now().UTC()
+		} else {
+			for _, s := range series {
+				if n := s.Len(); n > 0 && s.TimeNs[n-1] > now.UnixNano() {
+					now = time.Unix(0, s.TimeNs[n-1]).UTC()
+				}
+			}
+			if now.IsZero() {
+				now = time.Now().UTC()
+			}
+		}
+	}
+	res.now = now
+
+	var mu sync.Mutex
+	outcomes := make([]tankOutcome, 0, len(j.plans))
+	record := func(o tankOutcome) {
+		mu.Lock()
+		outcomes = append(outcomes, o)
+		done := len(outcomes)
+		mu.Unlock()
+		if o.err != nil {
+			j.log.Error("tank failed", "tank", o.tank, "err", o.err)
+		}
+		if opt.progress != nil {
+			opt.progress(done, len(j.plans), o.tank)
+		}
+	}
+
+	// File tanks: bounded worker pool, one goroutine per tank at a time.
+	sem := make(chan struct{}, max(1, j.workers))
+	var wg sync.WaitGroup
+	for _, p := range fileTanks {
+		if err := readErrs[p.cfg.ID]; err != nil {
+			record(tankOutcome{tank: p.cfg.ID, err: err})
+			continue
+		}
+		wg.Add(1)
+		sem <- struct{}{}
+		go func(p *plan) {
+			defer wg.Done()
+			defer func() { <-sem }()
+			record(j.scanSeries(p, series[p.cfg.ID], now))
+		}(p)
+	}
+	wg.Wait()
+	for _, o := range j.scanInflux(ctx, influxTanks, now, opt) {
+		record(o)
+	}
+	slices.SortFunc(outcomes, func(a, b tankOutcome) int { return cmp.Compare(a.tank, b.tank) })
+	res.outcomes = outcomes
+	if err := ctx.Err(); err != nil {
+		return res, err
+	}
+	evs, err := j.updateAlerts(now, outcomes)
+	res.events = evs
+	return res, err
+}
+
+// readFiles reads every file source once, grouped by identical source
+// settings, and returns the series per tank, the merged report and the read
+// error of each tank whose group failed.
+func (j *job) readFiles(ctx context.Context, plans []*plan) (map[string]*model.Series, ingest.Report, map[string]error) {
+	type group struct {
+		src         config.Source
+		inflowField string
+		conv        map[string]ingest.Conversion
+		tanks       []string
+	}
+	groups := map[string]*group{}
+	var order []string
+	for _, p := range plans {
+		s := p.cfg.Source
+		inflowField := ""
+		if p.cfg.Sensor.Inflow != nil {
+			inflowField = p.cfg.Sensor.Inflow.Field
+		}
+		key := fmt.Sprintf("%s|%q|%s|%s|%s|%s|%s", s.Format, s.Paths, s.Measurement, s.Field, s.TankTag, s.Precision, inflowField)
+		g, ok := groups[key]
+		if !ok {
+			g = &group{src: s, inflowField: inflowField, conv: map[string]ingest.Conversion{}}
+			groups[key] = g
+			order = append(order, key)
+		}
+		g.conv[p.cfg.ID] = p.conv
+		g.tanks = append(g.tanks, p.cfg.ID)
+	}
+	all := map[string]*model.Series{}
+	errs := map[string]error{}
+	var rep ingest.Report
+	for _, key := range order {
+		g := groups[key]
+		format, err := ingest.ParseFormat(g.src.Format)
+		if err == nil {
+			var prec ingest.Precision
+			prec, err = ingest.ParsePrecision(g.src.Precision)
+			if err == nil {
+				opt := ingest.ReadOptions{Precision: prec, Measurement: g.src.Measurement, Field: g.src.Field, TankTag: g.src.TankTag, InflowField: g.inflowField}
+				var got map[string]*model.Series
+				var r ingest.Report
+				got, r, err = ingest.ReadSeries(ctx, g.src.Paths, format, opt, g.conv)
+				rep.Merge(r)
+				for k, v := range got {
+					all[k] = v
+				}
+			}
+		}
+		if err != nil {
+			for _, t := range g.tanks {
+				errs[t] = err
+			}
+		}
+	}
+	return all, rep, errs
+}
+
+// scanSeries carries one file tank through the pass.
+func (j *job) scanSeries(p *plan, s *model.Series, now time.Time) tankOutcome {
+	o := tankOutcome{tank: p.cfg.ID}
+	r, from, err := openTankRun(j.st, p, j.log)
+	if err != nil {
+		o.err = err
+		return o
+	}
+	if s != nil {
+		i, _ := slices.BinarySearch(s.TimeNs, from)
+		part := &model.Series{Tank: s.Tank, TimeNs: s.TimeNs[i:], HeadM: s.HeadM[i:]}
+		if s.InflowM3s != nil {
+			part.InflowM3s = s.InflowM3s[i:]
+		}
+		r.push(part)
+	}
+	o.samples, o.drains = r.total, r.drains
+	o.fits, o.err = r.commit(true, now.UnixNano())
+	if o.err == nil {
+		o.findings = r.det.Evaluate(now, p.detOpt)
+	}
+	return o
+}
+
+// updateAlerts runs the alert lifecycle over the tanks that were evaluated
+// and persists it.
+func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event, error) {
+	var prev []alert.Record
+	var evaluated []string
+	var findings []detect.Finding
+	for _, o := range outcomes {
+		recs, err := j.st.Alerts(o.tank)
+		if err != nil {
+			return nil, err
+		}
+		for _, ar := range recs {
+			var r alert.Record
+			if err := decodeGob(ar.Data, &r); err != nil {
+				return nil, fmt.Errorf("tank %s: stored alert %s: %w", o.tank, ar.Key, err)
+			}
+			prev = append(prev, r)
+		}
+		if o.err == nil {
+			evaluated = append(evaluated, o.tank)
+			findings = append(findings, o.findings...)
+		}
+	}
+	tr := alert.NewTracker(prev)
+	evs := tr.Update(now, evaluated, findings)
+	keep := map[string]bool{}
+	var put []store.AlertRecord
+	for _, r := range tr.Records() {
+		keep[r.Key] = true
+		data, err := encodeGob(r)
+		if err != nil {
+			return nil, err
+		}
+		put = append(put, store.AlertRecord{Key: alertKey(r.Finding), Data: data})
+	}
+	var del []store.AlertKey
+	for _, r := range prev {
+		if !keep[r.Key] {
+			del = append(del, alertKey(r.Finding))
+		}
+	}
+	if err := j.st.UpdateAlerts(put, del); err != nil {
+		return nil, err
+	}
+	return evs, nil
+}
+
+func alertKey(f detect.Finding) store.AlertKey {
+	return store.AlertKey{Tank: f.Tank, Kind: f.Kind, Subtype: f.Subtype}
+}
+
+// errTankFailures reports how many tanks failed in a pass.
+func errTankFailures(failed []tankOutcome) error {
+	if len(failed) == 0 {
+		return nil
+	}
+	errs := make([]error, len(failed))
+	for i, o := range failed {
+		errs[i] = fmt.Errorf("tank %s: %w", o.tank, o.err)
+	}
+	return fmt.Errorf("%d of the tanks failed: %w", len(failed), errors.Join(errs...))
+}

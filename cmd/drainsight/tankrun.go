@@ -1,0 +1,244 @@
+package main
+
+import (
+	"bytes"
+	"cmp"
+	"encoding/gob"
+	"fmt"
+	"log/slog"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+
+	"drainsight/detect"
+	"drainsight/model"
+	"drainsight/store"
+)
+
+// lookback is how far before a tank's committed time each scan re-reads, so
+// that the segmenter sees a drain still open at the boundary whole and has
+// enough quiet data to estimate the noise (model.Segmenter.CommittedNs asks
+// for at least 8 h and more than the longest drain).
+const lookback = 12 * time.Hour
+
+// encodeState and decodeState keep the detector state as gob, which carries
+// the NaN the statistics use for "not yet known" (JSON cannot).
+func encodeState(s savedState) ([]byte, error) { return encodeGob(s) }
+
+func decodeState(blob []byte, s *savedState) error { return decodeGob(blob, s) }
+
+// encodeGob and decodeGob are the store's blob encoding for our own values
+// (detector state, alert records): gob keeps NaN and needs no schema file.
+func encodeGob(v any) ([]byte, error) {
+	var b bytes.Buffer
+	err := gob.NewEncoder(&b).Encode(v)
+	return b.Bytes(), err
+}
+
+func decodeGob(blob []byte, v any) error {
+	return gob.NewDecoder(bytes.NewReader(blob)).Decode(v)
+}
+
+// savedState is the detector state blob kept in the store: the detector's
+// own state plus the fingerprint of the maintenance records it has applied,
+// so that a record added or removed later triggers a replay.
+type savedState struct {
+	Maintenance string        `json:"maintenance"`
+	Detector    *detect.State `json:"detector"`
+}
+
+// tankRun carries one tank through one scan: segmenter, fits, detector and
+// the commits to the store. It is used by one goroutine at a time.
+type tankRun struct {
+	p      *plan
+	st     *store.Store
+	log    *slog.Logger
+	det    *detect.State
+	seg    *model.Segmenter
+	cp     store.Checkpoint
+	hadCP  bool
+	maint  string
+	fresh  []model.Fit // fits of this scan, in time order
+	idles  []model.IdleFit
+	fitErr int
+	drains int
+	seen   int64 // samples pushed since the last commit
+	total  int64 // samples pushed in this run
+}
+
+// openTankRun loads the tank's checkpoint and detector state (replaying the
+// stored history if the maintenance records changed) and returns the run and
+// the time from which samples must be pushed.
+func openTankRun(st *store.Store, p *plan, log *slog.Logger) (*tankRun, int64, error) {
+	r := &tankRun{p: p, st: st, log: log}
+	id := p.cfg.ID
+	cp, ok, err := st.Checkpoint(id)
+	if err != nil {
+		return nil, 0, err
+	}
+	r.cp, r.hadCP = cp, ok
+	recs, err := st.Maintenance(id)
+	if err != nil {
+		return nil, 0, err
+	}
+	r.maint = maintenanceFingerprint(recs)
+	blob, err := st.DetectorState(id)
+	if err != nil {
+		return nil, 0, err
+	}
+	var saved savedState
+	if len(blob) > 0 {
+		if err := decodeState(blob, &saved); err != nil {
+			return nil, 0, fmt.Errorf("tank %s: stored detector state: %w", id, err)
+		}
+	}
+	if saved.Detector == nil || saved.Maintenance != r.maint {
+		if r.det, err = replay(st, p, recs); err != nil {
+			return nil, 0, err
+		}
+	} else {
+		r.det = saved.Detector
+	}
+	opt := p.segOpt
+	from := int64(0)
+	if ok {
+		opt.EmitFromNs = cp.CommittedNs
+		from = cp.CommittedNs - int64(lookback)
+	}
+	r.seg = model.NewSegmenter(&p.tank, opt)
+	return r, from, nil
+}
+
+// replay rebuilds a detector state from the stored fits, idle periods and
+// maintenance records, in time order.
+func replay(st *store.Store, p *plan, recs []store.Maintenance) (*detect.State, error) {
+	id := p.cfg.ID
+	det := detect.NewState(id)
+	fits, err := st.Fits(id, 0, 1<<62)
+	if err != nil {
+		return nil, err
+	}
+	idles, err := st.Idles(id, 0, 1<<62)
+	if err != nil {
+		return nil, err
+	}
+	type item struct {
+		t    int64
+		fit  *model.Fit
+		idle *model.IdleFit
+		m    *store.Maintenance
+	}
+	var items []item
+	for i := range fits {
+		items = append(items, item{t: fits[i].EndNs, fit: &fits[i]})
+	}
+	for i := range idles {
+		items = append(items, item{t: idles[i].EndNs, idle: &idles[i]})
+	}
+	for i := range recs {
+		items = append(items, item{t: recs[i].AtNs, m: &recs[i]})
+	}
+	slices.SortStableFunc(items, func(a, b item) int { return cmp.Compare(a.t, b.t) })
+	for _, it := range items {
+		switch {
+		case it.fit != nil:
+			det.AddFit(*it.fit, p.detOpt)
+		case it.idle != nil:
+			det.AddIdle(*it.idle, p.detOpt)
+		default:
+			if err := det.Reset(time.Unix(0, it.m.AtNs).UTC(), string(it.m.Action)); err != nil {
+				return nil, err
+			}
+		}
+	}
+	return det, nil
+}
+
+func maintenanceFingerprint(recs []store.Maintenance) string {
+	var b strings.Builder
+	for _, m := range recs {
+		b.WriteString(strconv.FormatUint(m.ID, 10))
+		b.WriteByte('@')
+		b.WriteString(strconv.FormatInt(m.AtNs, 10))
+		b.WriteString(string(m.Action))
+		b.WriteByte(';')
+	}
+	return b.String()
+}
+
+// push feeds samples (time order) into the sensor checks and the segmenter,
+// and fits whatever segments complete.
+func (r *tankRun) push(s *model.Series) {
+	if s.Len() == 0 {
+		return
+	}
+	r.seen += int64(s.Len())
+	r.total += int64(s.Len())
+	r.det.AddSeries(s, r.p.detOpt)
+	r.seg.Push(s.TimeNs, s.HeadM, s.InflowM3s)
+	r.fitSegments(r.seg.Take())
+}
+
+func (r *tankRun) fitSegments(segs []model.Segment) {
+	for i := range segs {
+		sg := &segs[i]
+		switch sg.Kind {
+		case model.Drain:
+			r.drains++
+			f, err := model.FitDrain(&r.p.tank, sg, r.p.fitOpt)
+			if err != nil {
+				r.fitErr++
+				r.log.Debug("drain not fitted", "tank", r.p.cfg.ID, "start", sg.Start(), "err", err)
+				continue
+			}
+			f.Tank = r.p.cfg.ID
+			r.fresh = append(r.fresh, f)
+			r.det.AddFit(f, r.p.detOpt)
+		case model.Idle:
+			f, err := model.FitIdle(&r.p.tank, sg)
+			if err != nil {
+				r.log.Debug("idle period not fitted", "tank", r.p.cfg.ID, "start", sg.Start(), "err", err)
+				continue
+			}
+			f.Tank = r.p.cfg.ID
+			r.idles = append(r.idles, f)
+			r.det.AddIdle(f, r.p.detOpt)
+		}
+	}
+}
+
+// commit writes what the run has produced since the last commit, with the
+// detector state and the checkpoint, in one transaction. With final set the
+// segmenter is flushed first (end of the data available now).
+func (r *tankRun) commit(final bool, nowNs int64) (fits []model.Fit, err error) {
+	if final {
+		r.fitSegments(r.seg.Flush())
+	}
+	committed := r.seg.CommittedNs()
+	if committed == minNs {
+		committed = r.cp.CommittedNs
+	}
+	blob, err := encodeState(savedState{Maintenance: r.maint, Detector: r.det})
+	if err != nil {
+		return nil, fmt.Errorf("tank %s: encode detector state: %w", r.p.cfg.ID, err)
+	}
+	cp := store.Checkpoint{
+		CommittedNs: committed,
+		ResumeNs:    committed,
+		UpdatedNs:   nowNs,
+		Samples:     r.cp.Samples + r.seen,
+		Drains:      r.cp.Drains + len(r.fresh),
+	}
+	err = r.st.CommitTank(r.p.cfg.ID, store.TankCommit{
+		Fits: r.fresh, Idles: r.idles, DetectorState: blob, Checkpoint: &cp,
+	})
+	if err != nil {
+		return nil, err
+	}
+	r.cp, r.hadCP = cp, true
+	fits, r.fresh, r.idles, r.seen = r.fresh, nil, nil, 0
+	return fits, nil
+}
+
+const minNs = -1 << 63

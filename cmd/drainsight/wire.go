@@ -1,0 +1,116 @@
+package main
+
+import (
+	"fmt"
+	"time"
+
+	"drainsight/config"
+	"drainsight/detect"
+	"drainsight/ingest"
+	"drainsight/model"
+)
+
+// plan is one tank's configuration copied onto the options of each part.
+type plan struct {
+	cfg    config.Tank
+	tank   model.Tank
+	conv   ingest.Conversion
+	segOpt model.SegmentOptions
+	fitOpt model.FitOptions
+	detOpt detect.Options
+}
+
+// buildPlans turns the loaded config into one plan per tank. Config
+// validation has already checked every field; the errors here name the tank
+// for the few cross-field checks the physics makes.
+func buildPlans(cfg *config.Config) ([]*plan, error) {
+	plans := make([]*plan, 0, len(cfg.Tanks))
+	for _, ct := range cfg.Tanks {
+		p, err := buildPlan(ct)
+		if err != nil {
+			return nil, fmt.Errorf("%s: tank %s: %w", cfg.File, ct.ID, err)
+		}
+		plans = append(plans, p)
+	}
+	return plans, nil
+}
+
+func buildPlan(ct config.Tank) (*plan, error) {
+	shape, err := buildShape(ct.Geometry)
+	if err != nil {
+		return nil, err
+	}
+	t := model.Tank{
+		ID:          ct.ID,
+		Shape:       shape,
+		OutletElevM: ct.Outlet.ElevationM,
+		OutletDiamM: ct.Outlet.DiameterM,
+		DesignCd:    ct.Outlet.DesignCd,
+		DatumKnown:  ct.Outlet.ElevationKnown,
+	}
+	if err := t.Validate(); err != nil {
+		return nil, err
+	}
+	s := ingest.Sensor{
+		Kind:        ingest.Depth,
+		UnitToSI:    ct.Sensor.UnitToSI,
+		ZeroOffset:  ct.Sensor.ZeroOffset,
+		DensityKgM3: ct.Sensor.DensityKgM3,
+		SpanM:       ct.Sensor.SpanM,
+	}
+	if ct.Sensor.Kind == config.Pressure {
+		s.Kind = ingest.Pressure
+	}
+	conv := ingest.Conversion{Sensor: s, OutletElevM: ct.Outlet.ElevationM}
+	if ct.Sensor.Inflow != nil {
+		conv.InflowToSI = ct.Sensor.Inflow.ToSI
+	}
+	if err := s.Validate(); err != nil {
+		return nil, err
+	}
+	d := ct.Detection
+	return &plan{
+		cfg:  ct,
+		tank: t,
+		conv: conv,
+		segOpt: model.SegmentOptions{
+			MinDropM:    d.MinDropM,
+			MinDuration: d.MinDrainDuration,
+			Transient:   d.Transient,
+			Settle:      d.Settle,
+			GapLimit:    d.GapLimit,
+		},
+		detOpt: detect.Options{
+			BaselineDrains:      d.BaselineDrains,
+			DesignKM25s:         d.DesignKM25s,
+			FalseAlarmYears:     d.FalseAlarmInterval.Hours() / (24 * 365.25),
+			CUSUMK:              d.CusumK,
+			EWMALambda:          d.EWMALambda,
+			MaintenanceFraction: d.MaintenanceFraction,
+			GapLimit:            max(d.GapLimit, 15*time.Minute),
+		},
+	}, nil
+}
+
+func buildShape(g config.Geometry) (model.Shape, error) {
+	switch g.Shape {
+	case config.VerticalCylinder:
+		return model.VerticalCylinder{DiameterM: g.DiameterM, InternalHeightM: g.HeightM}, nil
+	case config.Rectangular:
+		return model.Rectangular{LengthM: g.LengthM, WidthM: g.WidthM, InternalHeightM: g.HeightM}, nil
+	case config.HorizontalCylinder:
+		return model.HorizontalCylinder{DiameterM: g.DiameterM, LengthM: g.LengthM}, nil
+	case config.Sphere:
+		return model.Sphere{DiameterM: g.DiameterM}, nil
+	case config.ConeBottomCylinder:
+		return model.ConeBottomCylinder{DiameterM: g.DiameterM, CylinderHeightM: g.HeightM - g.ConeHeightM, ConeHeightM: g.ConeHeightM}, nil
+	case config.StrappingTable:
+		lv := make([]float64, len(g.Strapping))
+		vol := make([]float64, len(g.Strapping))
+		for i, p := range g.Strapping {
+			lv[i], vol[i] = p.LevelM, p.VolumeM3
+		}
+		return model.NewStrappingTable(lv, vol)
+	}
+	return nil, fmt.Errorf("unknown shape %q", g.Shape)
+}
