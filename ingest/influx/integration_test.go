@@ -313,7 +313,8 @@ func TestIntegrationServerKilledMidPull(t *testing.T) {
 	conn := integrationConn(t)
 	sc := serverControlOrSkip(t)
 	ctx := context.Background()
-	c := integrationClient(t, conn, Options{Retry: Retry{Attempts: 10, Initial: 300 * time.Millisecond, Max: 3 * time.Second}})
+	// A generous budget: a restart replays the WAL and may take a while on a busy machine.
+	c := integrationClient(t, conn, Options{Retry: Retry{Attempts: 25, Initial: 300 * time.Millisecond, Max: 3 * time.Second}})
 	meas := testMeasurement(t)
 	const n = 200_000
 	ts := make([]int64, n)
