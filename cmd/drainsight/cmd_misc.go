@@ -133,7 +133,7 @@ func runMaintenance(ctx context.Context, e *env, args []string) error {
 	if path == "" {
 		path = cfg.Outputs.StateFile
 	}
-	st, err := store.Open(path, 5*time.Second)
+	st, err := openStore(path)
 	if err != nil {
 		return err
 	}

@@ -67,7 +67,7 @@ func writeReportFiles(cfg *config.Config, statePath, dir string, now time.Time, 
 	if statePath == "" {
 		statePath = cfg.Outputs.StateFile
 	}
-	st, err := store.Open(statePath, 5*time.Second)
+	st, err := openStore(statePath)
 	if err != nil {
 		return err
 	}

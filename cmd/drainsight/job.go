@@ -44,7 +44,7 @@ func openJob(cfg *config.Config, statePath string, log *slog.Logger) (*job, erro
 	if err != nil {
 		return nil, err
 	}
-	st, err := store.Open(statePath, 5*time.Second)
+	st, err := openStore(statePath)
 	if err != nil {
 		closeClients(clients)
 		return nil, err

@@ -6,6 +6,8 @@ import (
 	"encoding/gob"
 	"fmt"
 	"log/slog"
+	"os"
+	"path/filepath"
 	"slices"
 	"strconv"
 	"strings"
@@ -242,3 +244,11 @@ func (r *tankRun) commit(final bool, nowNs int64) (fits []model.Fit, err error) 
 }
 
 const minNs = -1 << 63
+
+// openStore opens the state file with a lock timeout, creating its directory.
+func openStore(path string) (*store.Store, error) {
+	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+		return nil, err
+	}
+	return store.Open(path, 5*time.Second)
+}
