@@ -178,72 +178,136 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 	return out
 }
 
+// Shape decision constants (see classifyShift and the package doc).
+const (
+	shapeDecisive = 2.0 // log-likelihood units that settle step against broken line
+	smallStepSD   = 2.0 // a step estimated below this many sd cannot be told from a ramp's start
+)
+
 // classifyShift locates the onset, measures the magnitude, tells a gradual
 // change from a step and forecasts.
-func (s *State) classifyShift(f *Finding, now time.Time, opt Options, run int) {
-	pts := s.Points
-	w := min(len(pts), max(3*run, 30))
-	win := pts[len(pts)-w:]
-	z := make([]float64, w)
-	td := make([]float64, w)
-	for i, p := range win {
-		z[i] = p.Z
-		td[i] = float64(p.TimeNs-win[0].TimeNs) / nsPerDay
+//
+// The series is ln K of every drain since the reference was set (baseline
+// drains first, then the monitored ones, at most 400). fitStepRamp profiles a
+// step and a broken line over the change point, both with a free pre-change
+// level; with σ² the reference variance of ln K, ΔLL = (RSS_step -
+// RSS_ramp)/(2σ²) is the log-likelihood (and half the BIC) advantage of the
+// ramp, and stepSD the fitted step in units of σ. The rule, in order:
+//
+//   - ΔLL >= +2: the broken line is clearly better: gradual;
+//   - stepSD < 2 and ΔLL > -4: gradual. A fall caught while it is smaller
+//     than 2 sd took many drains to build up, which is what the start of a
+//     ramp looks like; a real step of 2 sd or more is caught within a few
+//     drains of its onset. Such a small change is called a step only on
+//     strong evidence (ΔLL <= -4);
+//   - ΔLL <= -2: the step is clearly better: abrupt;
+//   - otherwise gradual when at least 8 drains follow the fitted step and
+//     Mann-Kendall (Hamed-Rao corrected, TrendAlpha) finds a trend of the
+//     change's sign within them (flat after a true step, still moving on a
+//     ramp); else abrupt.
+//
+// The decision is a function of the data only, so it is re-made at every
+// Evaluate; as drains arrive ΔLL moves away from zero and the subtype settles
+// on the better-supported model (a ramp that has only just been caught may be
+// called abrupt if it started with a jump; a long ramp that has levelled off
+// still fits a broken line better than a step until the plateau dominates).
+func (s *State) classifyShift(f *Finding, now time.Time, opt Options, _ int) {
+	all := make([]Point, 0, len(s.Learn)+len(s.Points))
+	if len(s.Points) < maxPoints {
+		all = append(all, s.Learn...)
 	}
-	cp := MeanShift(z)
-	if cp.Index == 0 {
-		cp.Index, cp.Lo, cp.Hi = 0, 0, 0
-	}
-	f.Onset = nsTime(win[cp.Index].TimeNs)
-	f.OnsetLo = nsTime(win[cp.Lo].TimeNs)
-	f.OnsetHi = nsTime(win[cp.Hi].TimeNs)
-	shape := fitShape(td, z)
-	// Trend on ln K after the ramp onset.
-	from := min(shape.RampIndex, cp.Index)
-	post := win[from:]
-	tt := make([]float64, len(post))
-	y := make([]float64, len(post))
-	for i, p := range post {
-		tt[i] = float64(p.TimeNs-now.UnixNano()) / nsPerDay
+	all = append(all, s.Points...)
+	n := len(all)
+	td := make([]float64, n)
+	y := make([]float64, n)
+	for i, p := range all {
+		td[i] = float64(p.TimeNs-all[0].TimeNs) / nsPerDay
 		y[i] = p.LnK
 	}
-	mk := MannKendallCorrected(tt, y)
-	ts := TheilSen(tt, y, 0.95)
-	// Gradual: a significant monotone trend after the onset that a ramp
-	// explains better than a step, or an onset so poorly located (profile
-	// interval wider than 4 drains) that no step is evident while a ramp
-	// fits about as well (within one log-likelihood unit).
-	trend := shape.RampGain > shape.StepGain && mk.P < opt.TrendAlpha && len(post) >= 8 &&
-		sgn(ts.Slope) == sgn(shape.RampSlope) && sgn(mk.S) == sgn(shape.RampSlope)
-	vague := cp.Hi-cp.Lo > 4 && shape.RampGain >= shape.StepGain-1 && sgn(shape.RampSlope) == sgn(cp.Shift)
-	gradual := trend || vague
+	s2 := math.Max(s.Ref.M2/float64(s.Ref.DegreesOF), s.minScatter2)
+	if !(s2 > 0) {
+		s2 = 0.005 * 0.005
+	}
+	sr := fitStepRamp(td, y)
+	var dLL float64
+	var mk MKResult
+	var ts TheilSenResult
+	gradual := false
+	if sr.rssStep != nil {
+		dLL = (sr.RSSStep - sr.RSSRamp) / (2 * s2)
+		// Trend on ln K after the kink, against days before now.
+		post := all[sr.RampIndex:]
+		tt := make([]float64, len(post))
+		yy := make([]float64, len(post))
+		for i, p := range post {
+			tt[i] = float64(p.TimeNs-now.UnixNano()) / nsPerDay
+			yy[i] = p.LnK
+		}
+		mk = MannKendallCorrected(tt, yy)
+		ts = TheilSen(tt, yy, 0.95)
+		stepSD := math.Abs(sr.Shift) / math.Sqrt(s2)
+		// Trend within the post-step segment: flat after a true step, still
+		// falling (or rising) on a ramp.
+		var postTrend bool
+		if ps := all[sr.StepIndex:]; len(ps) >= 8 {
+			pt := make([]float64, len(ps))
+			py := make([]float64, len(ps))
+			for i, p := range ps {
+				pt[i] = float64(p.TimeNs-now.UnixNano()) / nsPerDay
+				py[i] = p.LnK
+			}
+			pm := MannKendallCorrected(pt, py)
+			postTrend = pm.P < opt.TrendAlpha && sgn(pm.S) == sgn(sr.Shift)
+		}
+		same := sgn(sr.Slope) == sgn(sr.Shift)
+		switch {
+		case dLL >= shapeDecisive:
+			gradual = same
+		case stepSD < smallStepSD && dLL > -2*shapeDecisive:
+			gradual = same
+		case dLL <= -shapeDecisive:
+			gradual = false
+		default:
+			gradual = same && postTrend
+		}
+	}
 	current := 0.0
 	if gradual {
 		f.Subtype = SubGradual
-		f.Onset = nsTime(win[shape.RampIndex].TimeNs)
-		current = ts.Intercept // t = 0 is now
-		// Theil-Sen's intercept is at t = 0 (now) by construction of tt.
+		lo, hi := profileInterval(sr.rssRamp, sr.RampIndex, s2)
+		f.Onset, f.OnsetLo, f.OnsetHi = nsTime(all[sr.RampIndex].TimeNs), nsTime(all[lo].TimeNs), nsTime(all[hi].TimeNs)
+		current = ts.Intercept // Theil-Sen's intercept is at t = 0, now
 	} else {
 		f.Subtype = SubAbrupt
+		from := max(0, n-1)
+		if sr.rssStep != nil {
+			from = sr.StepIndex
+			lo, hi := profileInterval(sr.rssStep, sr.StepIndex, s2)
+			f.OnsetLo, f.OnsetHi = nsTime(all[lo].TimeNs), nsTime(all[hi].TimeNs)
+		}
+		f.Onset = nsTime(all[from].TimeNs)
+		if sr.rssStep == nil {
+			f.OnsetLo, f.OnsetHi = f.Onset, f.Onset
+		}
 		var sum float64
-		for _, p := range win[cp.Index:] {
+		for _, p := range all[from:] {
 			sum += p.LnK
 		}
-		current = sum / float64(w-cp.Index)
+		current = sum / float64(n-from)
 	}
 	f.MagnitudePct = 100 * (math.Exp(current-s.Ref.LnK) - 1)
 	kind := "fell"
 	if f.MagnitudePct > 0 {
 		kind = "rose"
 	}
-	f.Evidence = fmt.Sprintf("K %s %.1f %% from baseline %.4g m^2.5/s (%s %.2f > %.2f, about one false alarm per %.0f years at %.0f drains/year); change point %s (interval %s to %s)",
+	f.Evidence = fmt.Sprintf("K %s %.1f %% from baseline %.4g m^2.5/s (%s %.2f > %.2f, about one false finding per %.0f years at %.0f drains/year); change point %s (interval %s to %s)",
 		kind, math.Abs(f.MagnitudePct), s.Ref.KM25s, f.Statistic, f.Value, f.Threshold, opt.FalseAlarmYears, s.drainsPerYear(),
 		f.Onset.Format("2006-01-02"), f.OnsetLo.Format("2006-01-02"), f.OnsetHi.Format("2006-01-02"))
 	if gradual {
-		f.Evidence += fmt.Sprintf("; gradual: Theil-Sen %.3f %%/day (95 %% CI %.3f to %.3f), Mann-Kendall p = %.2g",
-			100*ts.Slope, 100*ts.Lo, 100*ts.Hi, mk.P)
+		f.Evidence += fmt.Sprintf("; gradual: a ramp fits %.1f log-likelihood units better than a step, Theil-Sen %.3f %%/day (95 %% CI %.3f to %.3f), Mann-Kendall p = %.2g",
+			dLL, 100*ts.Slope, 100*ts.Lo, 100*ts.Hi, mk.P)
 	} else {
-		f.Evidence += fmt.Sprintf("; abrupt step of %.2f sd", cp.Shift)
+		f.Evidence += fmt.Sprintf("; abrupt step of %.2f sd (a step fits %.1f log-likelihood units better than a ramp)", sr.Shift/math.Sqrt(s2), -dLL)
 	}
 	f.Forecast = s.forecast(current, ts, gradual, now, opt)
 }
