@@ -14,6 +14,14 @@ const madScale = 1.482602218505602
 func medianInPlace(x []float64) float64 {
 	n := len(x)
 	k := n / 2
+	if n >= bracketMinN {
+		if lo, hi, ok := bracketMedian(x); ok {
+			if n%2 == 1 {
+				return hi
+			}
+			return 0.5 * (lo + hi)
+		}
+	}
 	hi := selectKth(x, k)
 	if n%2 == 1 {
 		return hi
@@ -25,6 +33,61 @@ func medianInPlace(x []float64) float64 {
 		}
 	}
 	return 0.5 * (lo + hi)
+}
+
+// bracketMinN is the length from which medianInPlace brackets the median
+// from a sample before selecting.
+const bracketMinN = 1024
+
+// bracketMedian returns the order statistics x_(k-1) and x_(k), k = n/2, of
+// x (n >= bracketMinN), reordering x, in about one pass (after Floyd and
+// Rivest's selection): a strided sample of about 4 sqrt(n) values gives a
+// bracket [lo, hi] that holds rank k with overwhelming probability; one pass
+// counts the values below lo and moves those inside the bracket to the
+// front, and quickselect finishes on those few. The values are exact, the
+// same as a full quickselect; ok is false (x still a permutation of its
+// input) when the bracket missed, and the caller selects on all of x.
+func bracketMedian(x []float64) (lo, hi float64, ok bool) {
+	n := len(x)
+	k := n / 2
+	var buf [1024]float64
+	m := min(len(buf), 4*int(math.Sqrt(float64(n))))
+	smp := buf[:m]
+	for i := range smp {
+		smp[i] = x[int(uint64(i)*uint64(n)/uint64(m))]
+	}
+	// Sample ranks m/2 ± 3.5 standard deviations (sqrt(m)/2) and a margin.
+	d := int(1.75*math.Sqrt(float64(m))) + 4
+	ra, rb := max(m/2-d, 0), min(m/2+d, m-1)
+	bhi := selectKth(smp, rb)
+	blo := selectKth(smp[:rb], ra)
+	// Branch-free: the compiler turns both conditional increments into
+	// conditional moves, and the swap is done for every value (a no-op
+	// move of two values outside the bracket when the increment is 0).
+	below, c := 0, 0
+	for i, v := range x {
+		lt, in := 0, 0
+		if v < blo {
+			lt = 1
+		}
+		if v <= bhi {
+			in = 1
+		}
+		x[c], x[i] = v, x[c]
+		below += lt
+		c += in - lt
+	}
+	r := k - below
+	if r < 1 || r >= c {
+		return 0, 0, false
+	}
+	cand := x[:c]
+	hi = selectKth(cand, r)
+	lo = cand[0]
+	for _, v := range cand[1:r] {
+		lo = max(lo, v)
+	}
+	return lo, hi, true
 }
 
 // selectKth moves the k-th smallest element to x[k] (elements before it are

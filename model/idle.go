@@ -40,15 +40,14 @@ func FitIdle(t *Tank, seg *Segment) (IdleFit, error) {
 		Spikes: seg.Spikes, GapCount: seg.GapCount,
 		LeakKM25s: math.NaN(), LeakKSEM25s: math.NaN(),
 	}
-	tau := make([]float64, n)
-	w0 := make([]float64, n)
-	w := make([]float64, n)
-	scratch := make([]float64, n)
-	out := make([]bool, n)
-	y := make([]float64, n)
+	sc := scratchPool.Get().(*fitScratch)
+	defer scratchPool.Put(sc)
+	sc.grow(n)
+	tau, w0, w, scratch, out, y := sc.tau, sc.w0, sc.w, sc.s, sc.out, sc.z
 	for i, tn := range seg.TimeNs {
 		tau[i] = float64(tn-seg.TimeNs[0]) * 1e-9
 		v := seg.HeadM[i]
+		w0[i], y[i] = 0, 0
 		if !math.IsNaN(v) && !math.IsInf(v, 0) {
 			w0[i], y[i] = 1, v
 		}

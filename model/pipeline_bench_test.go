@@ -100,7 +100,8 @@ func fitAll(t *model.Tank, segs []model.Segment) int {
 // history: segmentation in day windows, then FitDrain on every drain and
 // FitIdle on every idle period. samples/s counts samples of history (not
 // only those inside drains), so the "all" figure is the rate at which a
-// history can be processed; run with -cpu 1 for one core.
+// history can be processed; run with -cpu 1 for one core. cpu-samples/s
+// divides by the CPU time of the process instead of the wall time.
 //
 //	segment: NewSegmenter/Push/Take/Flush only
 //	fit:     FitDrain/FitIdle on the segments cut beforehand
@@ -118,35 +119,44 @@ func BenchmarkSegmentAndFit(b *testing.B) {
 			name := shape + "/" + every.String()
 			b.Run(name+"/segment", func(b *testing.B) {
 				load(b)
+				cpu := processCPU()
 				for b.Loop() {
 					segmentDays(&c.tank, &c.series)
 				}
-				reportRate(b, c.series.Len())
+				reportRate(b, c.series.Len(), processCPU()-cpu)
 			})
 			b.Run(name+"/fit", func(b *testing.B) {
 				load(b)
 				b.ReportAllocs()
+				cpu := processCPU()
 				for b.Loop() {
 					if bad := fitAll(&c.tank, c.segs); bad > 0 {
 						b.Fatalf("%d fits failed", bad)
 					}
 				}
-				reportRate(b, c.series.Len())
+				reportRate(b, c.series.Len(), processCPU()-cpu)
 				b.ReportMetric(float64(c.drains)*float64(b.N)/b.Elapsed().Seconds(), "drain-samples/s")
 			})
 			b.Run(name+"/all", func(b *testing.B) {
 				load(b)
+				cpu := processCPU()
 				for b.Loop() {
 					if bad := fitAll(&c.tank, segmentDays(&c.tank, &c.series)); bad > 0 {
 						b.Fatalf("%d fits failed", bad)
 					}
 				}
-				reportRate(b, c.series.Len())
+				reportRate(b, c.series.Len(), processCPU()-cpu)
 			})
 		}
 	}
 }
 
-func reportRate(b *testing.B, n int) {
+// reportRate reports samples of history per second of wall time and, where
+// the process CPU time is known, per second of CPU time (cpu-samples/s),
+// which load from other processes on a shared machine does not lower.
+func reportRate(b *testing.B, n int, cpu time.Duration) {
 	b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds(), "samples/s")
+	if cpu > 0 {
+		b.ReportMetric(float64(n)*float64(b.N)/cpu.Seconds(), "cpu-samples/s")
+	}
 }

@@ -321,27 +321,13 @@ func (s *Segmenter) accept(t int64, h, q float64) {
 }
 
 // med5 is the median of five values without data-dependent branches (the
-// compiler turns fmin/fmax into conditional moves): f and g are the second
-// and third smallest of a..d in some order, and the median of five is the
-// median of e, f and g.
+// builtin min and max compile to MINSD/MAXSD on amd64; the inputs are never
+// NaN): f and g are the second and third smallest of a..d in some order, and
+// the median of five is the median of e, f and g.
 func med5(a, b, c, d, e float64) float64 {
-	f := fmax(fmin(a, b), fmin(c, d))
-	g := fmin(fmax(a, b), fmax(c, d))
-	return fmax(fmin(e, f), fmin(fmax(e, f), g))
-}
-
-func fmin(a, b float64) float64 {
-	if a < b {
-		return a
-	}
-	return b
-}
-
-func fmax(a, b float64) float64 {
-	if a > b {
-		return a
-	}
-	return b
+	f := max(min(a, b), min(c, d))
+	g := min(max(a, b), max(c, d))
+	return max(min(e, f), min(max(e, f), g))
 }
 
 // filter emits filtered sample j using accepted samples up to hi.
