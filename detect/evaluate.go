@@ -111,9 +111,8 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 		}
 		return out
 	}
-	arl := s.chartARL0(opt)
-	h := cusumH(opt.CUSUMK, arl)
-	lim := ewmaL(opt.EWMALambda, arl)
+	h := cusumH(opt.CUSUMK, s.chartARL0(opt))
+	lim := ewmaL(opt.EWMALambda, s.ewmaARL0(opt))
 	sig := math.Sqrt(opt.EWMALambda / (2 - opt.EWMALambda))
 	ew := s.EWMA.Value / sig
 	down := s.CUSUM.Lo > h || ew < -lim
@@ -347,7 +346,7 @@ func (s *State) leakFinding(now time.Time, opt Options) (leak, drift *Finding) {
 	if s.LeakN == 0 {
 		return nil, nil
 	}
-	arl := 3 * opt.FalseAlarmYears * eventsPerYear(s.IdleTimesNs)
+	arl := opt.FalseAlarmYears * eventsPerYear(s.IdleTimesNs) / shareLeak
 	h := leakH(leakK, arl)
 	if s.LeakCUSUM <= h {
 		return nil, nil

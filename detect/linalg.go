@@ -53,6 +53,11 @@ func solveIMinusP(p []float64, n int) (v []float64, ok bool) {
 			return nil, false
 		}
 	}
+	if x.Len() != n {
+		// gonum leaves x empty when the factorisation is too badly
+		// conditioned to solve (seen for CUSUM intervals h > 30).
+		return nil, false
+	}
 	v = make([]float64, n)
 	for i := range v {
 		v[i] = x.AtVec(i)

@@ -22,8 +22,10 @@ type Options struct {
 	// baseline median; the scatter is still learned from the data.
 	DesignKM25s float64
 	// FalseAlarmYears is the mean interval between false outlet alarms on a
-	// healthy tank, in years. Default 5 (one false alarm per tank per five
-	// years). The CUSUM and the EWMA each get half the false-alarm budget.
+	// healthy tank, in years, shared by the outlet CUSUM, the outlet EWMA
+	// and the idle leak chart (a third of the budget each; the union bound
+	// makes the sum an upper limit). Default 10 (0.1 false findings per
+	// tank-year).
 	FalseAlarmYears float64
 	// CUSUMK is the CUSUM reference value in standard deviations of z
 	// (tuned to a shift of 2k). Default 0.5.
@@ -85,7 +87,7 @@ func (o Options) withDefaults() Options {
 		o.LearnDrains = max(o.LearnDrains, o.BaselineDrains)
 	}
 	if o.FalseAlarmYears <= 0 {
-		o.FalseAlarmYears = 5
+		o.FalseAlarmYears = 10
 	}
 	if o.CUSUMK <= 0 {
 		o.CUSUMK = 0.5

@@ -17,10 +17,10 @@ type stepRampFit struct {
 	N                int
 	RSSNone          float64 // constant level only
 	RSSStep, RSSRamp float64
-	StepIndex        int     // first changed point of the best step
-	Shift            float64 // δ
-	RampIndex        int     // kink of the best broken line (last unchanged point)
-	Slope            float64 // β per day
+	StepIndex        int       // first changed point of the best step
+	Shift            float64   // δ
+	RampIndex        int       // kink of the best broken line (last unchanged point)
+	Slope            float64   // β per day
 	rssStep, rssRamp []float64 // profiles over τ (+Inf where undefined)
 }
 

@@ -198,9 +198,8 @@ func (s *State) AddFit(f model.Fit, opt Options) {
 	s.Points = appendCapped(s.Points, p, maxPoints)
 
 	if opt.LearnDrains == 0 || s.Ref.N < opt.LearnDrains {
-		arl := s.chartARL0(opt)
-		h := cusumH(opt.CUSUMK, arl)
-		l := ewmaL(opt.EWMALambda, arl) * s.EWMA.Sigma()
+		h := cusumH(opt.CUSUMK, s.chartARL0(opt))
+		l := ewmaL(opt.EWMALambda, s.ewmaARL0(opt)) * s.EWMA.Sigma()
 		if math.Abs(tRaw) < 6 && s.CUSUM.Hi <= h && s.CUSUM.Lo <= h && math.Abs(s.EWMA.Value) <= l {
 			s.learn(p)
 		}
@@ -297,27 +296,57 @@ func (s *State) score(p Point) (z, t float64) {
 	return math.Max(-zClip, math.Min(zClip, z)), t
 }
 
-// drainsPerYear is the tank's observed drain frequency over the recent fit
-// times; 365 (one a day) until two weeks or 8 drains have been seen.
+// drainsPerYear is the tank's drain frequency used for the chart limits
+// (see eventsPerYear).
 func (s *State) drainsPerYear() float64 {
 	return eventsPerYear(s.FitTimesNs)
 }
 
+// maxEventsPerYear caps the early, conservative frequency: one event every
+// 30 minutes.
+const maxEventsPerYear = 48 * 365.25
+
+// eventsPerYear is the event frequency behind the chart limits. Over the
+// recent events (at most maxFreq) spanning at least two weeks and at least 8
+// events it is the observed rate (n-1)/span. Before that it is conservative:
+// the larger of one a day and the upper 97.5 % Poisson bound of the rate,
+// χ²_{0.975}(2n)/(2 span) (Garwood 1936), capped at maxEventsPerYear; so a
+// tank that drains several times a day gets limits for its true rate (or a
+// higher one) from its first evaluations, and the per-year false-alarm rate
+// holds from the start.
 func eventsPerYear(ts []int64) float64 {
 	const year = 365.25 * 24 * 3600 * 1e9
 	n := len(ts)
-	if n < 8 || float64(ts[n-1]-ts[0]) < 14*24*3600*1e9 {
-		return 365
+	if n >= 8 && float64(ts[n-1]-ts[0]) >= 14*24*3600*1e9 {
+		return float64(n-1) / (float64(ts[n-1]-ts[0]) / year)
 	}
-	return float64(n-1) / (float64(ts[n-1]-ts[0]) / year)
+	if n < 2 || ts[n-1] <= ts[0] {
+		return maxEventsPerYear
+	}
+	span := float64(ts[n-1]-ts[0]) / year
+	up := distuv.ChiSquared{K: float64(2 * n)}.Quantile(0.975) / (2 * span)
+	return math.Min(maxEventsPerYear, math.Max(365, up))
 }
 
-// chartARL0 is the in-control ARL (in drains) given to each of the outlet
-// CUSUM and EWMA: three times FalseAlarmYears × drains per year, so that with
-// the idle leak chart (which gets the same share) the three together give
-// about one false alarm per FalseAlarmYears.
+// Shares of the false-alarm budget: the outlet CUSUM, the outlet EWMA and
+// the idle leak CUSUM each get one third of the 1/FalseAlarmYears false
+// findings per year, so each chart's in-control ARL is 3 × FalseAlarmYears ×
+// events per year.
+const (
+	shareCUSUM = 1.0 / 3
+	shareEWMA  = 1.0 / 3
+	shareLeak  = 1.0 / 3
+)
+
+// chartARL0 is the in-control ARL (in drains) of a chart with the given
+// share of the false-alarm budget.
 func (s *State) chartARL0(opt Options) float64 {
-	return 3 * opt.FalseAlarmYears * s.drainsPerYear()
+	return opt.FalseAlarmYears * s.drainsPerYear() / shareCUSUM
+}
+
+// ewmaARL0 is the in-control ARL (in drains) of the outlet EWMA.
+func (s *State) ewmaARL0(opt Options) float64 {
+	return opt.FalseAlarmYears * s.drainsPerYear() / shareEWMA
 }
 
 // AddIdle adds one idle-period fit (in time order; repeats are ignored).
