@@ -151,16 +151,16 @@ type Source struct {
 
 // Detection tunes drain cutting and change detection for one tank.
 type Detection struct {
-	BaselineDrains      int           // default 10: good drains that form the baseline
+	BaselineDrains      int           // default 8: good drains that start the baseline (the detector's default)
 	DesignKM25s         float64       // design outlet constant, m^2.5/s; 0 when not given
 	FalseAlarmInterval  time.Duration // default 5 y: mean time between false alarms per tank and detector
 	CusumK              float64       // default 0.5: CUSUM reference value, in standard deviations
-	EWMALambda          float64       // default 0.2: EWMA weight of the newest drain
+	EWMALambda          float64       // default 0.1: EWMA weight of the newest drain (the detector's default)
 	MaintenanceFraction float64       // default 0.8: K below this fraction of baseline is due for maintenance
 	MinDropM            float64       // default 0.05 m: smallest level fall that counts as a drain
 	MinDrainDuration    time.Duration // default 2 min: shortest drain that is fitted
 	Transient           time.Duration // default 30 s: trimmed after the outlet opens
-	Settle              time.Duration // default 5 min: flat time before an idle period counts
+	Settle              time.Duration // default 5 min: quiet time after a drain before it is decided (a longer pause splits a drain)
 	GapLimit            time.Duration // default 5 min: longer gaps between samples split or flag a segment
 }
 

@@ -73,11 +73,11 @@
 //	    tank_tag                 (tank) line protocol
 //	    precision                (auto) numeric times: auto, s, ms, us, ns
 //	  detection                  optional
-//	    baseline_drains          (10) at least 3
+//	    baseline_drains          (8) at least 3
 //	    design_k                 optional, m^2.5/s (unit optional)
 //	    false_alarm_interval     (5 y) mean time between false alarms per detector
 //	    cusum_k                  (0.5) reference value, standard deviations
-//	    ewma_lambda              (0.2) in (0, 1]
+//	    ewma_lambda              (0.1) in (0, 1]
 //	    maintenance_fraction     (0.8) in (0, 1)
 //	    min_drop                 (5 cm)
 //	    min_drain_duration       (2 min)

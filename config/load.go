@@ -591,7 +591,7 @@ func (d *decoder) source(n *yaml.Node, path string, parent *fields) Source {
 func (d *decoder) detection(n *yaml.Node, path string) Detection {
 	f := d.mapping(n, path)
 	det := Detection{
-		BaselineDrains: quantity(f, "baseline_drains", 10, parseInt, func(v int) string {
+		BaselineDrains: quantity(f, "baseline_drains", 8, parseInt, func(v int) string {
 			if v < 3 {
 				return "must be at least 3"
 			}
@@ -600,7 +600,7 @@ func (d *decoder) detection(n *yaml.Node, path string) Detection {
 		DesignKM25s:         quantity(f, "design_k", 0, ParseOutletConstant, positive),
 		FalseAlarmInterval:  quantity(f, "false_alarm_interval", 5*JulianYearS*time.Second, ParseDuration, positiveDuration),
 		CusumK:              quantity(f, "cusum_k", 0.5, parseNumber, positive),
-		EWMALambda:          quantity(f, "ewma_lambda", 0.2, parseNumber, between(0, 1, true, false)),
+		EWMALambda:          quantity(f, "ewma_lambda", 0.1, parseNumber, between(0, 1, true, false)),
 		MaintenanceFraction: quantity(f, "maintenance_fraction", 0.8, parseNumber, between(0, 1, true, true)),
 		MinDropM:            quantity(f, "min_drop", 0.05, ParseLength, positive),
 		MinDrainDuration:    quantity(f, "min_drain_duration", 2*time.Minute, ParseDuration, positiveDuration),

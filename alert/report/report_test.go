@@ -1,0 +1,91 @@
+package report
+
+import (
+	"bytes"
+	"flag"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"drainsight/alert"
+	"drainsight/detect"
+	"drainsight/model"
+)
+
+var update = flag.Bool("update", false, "rewrite golden files")
+
+var now = time.Date(2026, 3, 2, 6, 0, 0, 0, time.UTC)
+
+func fits(k0, slopePerDay float64, n int) []model.Fit {
+	var out []model.Fit
+	for i := range n {
+		end := now.Add(time.Duration(i-n) * 24 * time.Hour)
+		k := k0 * (1 + slopePerDay*float64(i))
+		out = append(out, model.Fit{EndNs: end.UnixNano(), KM25s: k, KLo95M25s: k * 0.99, KHi95M25s: k * 1.01})
+	}
+	return out
+}
+
+func input() Input {
+	restr := detect.Finding{Tank: "wash-2", Kind: "restriction", Subtype: "gradual", MagnitudePct: -18,
+		Onset: now.Add(-20 * 24 * time.Hour), Evidence: "K fell 18 % from baseline"}
+	fc := &detect.Forecast{Date: now.Add(10 * 24 * time.Hour), DateLo: now.Add(6 * 24 * time.Hour),
+		DateHi: now.Add(18 * 24 * time.Hour), DrainTimeNowS: 1464, DrainTimeBaselineS: 1200}
+	return Input{
+		Site: "Invented test works", Now: now, PeriodStart: now.Add(-7 * 24 * time.Hour), FDR: 0.05,
+		Tanks: []Tank{
+			{ID: "wash-2", BaselineKM25s: 0.02, Fits: fits(0.02, -0.01, 20), Forecast: fc,
+				Findings: []alert.Record{{Status: alert.StatusNew, FirstSeen: now, Finding: restr}},
+				Rank:     detect.FleetRank{Tank: "wash-2", QValue: 0.001, Watch: true}},
+			{ID: "sump-1", BaselineKM25s: 0.01, Fits: fits(0.01, 0, 20), Rank: detect.FleetRank{Tank: "sump-1", QValue: 0.9}},
+			{ID: "new-3"},
+		},
+	}
+}
+
+func TestMarkdownGolden(t *testing.T) {
+	var buf bytes.Buffer
+	if err := Markdown(&buf, input()); err != nil {
+		t.Fatal(err)
+	}
+	golden := filepath.Join("testdata", "report.md.golden")
+	if *update {
+		os.WriteFile(golden, buf.Bytes(), 0o644)
+	}
+	want, err := os.ReadFile(golden)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := buf.String(); got != string(want) {
+		t.Errorf("report differs from %s (-update to accept):\n%s", golden, got)
+	}
+}
+
+func TestReportContents(t *testing.T) {
+	var md, html bytes.Buffer
+	if err := Markdown(&md, input()); err != nil {
+		t.Fatal(err)
+	}
+	if err := HTML(&html, input()); err != nil {
+		t.Fatal(err)
+	}
+	for _, doc := range []string{md.String(), html.String()} {
+		for _, want := range []string{"Caution: draining, flushing or entering a tank", "local codes and licensed practice", "wash-2", "ACTION", "gradual", "2026-03-12"} {
+			if !strings.Contains(doc, want) {
+				t.Errorf("report lacks %q", want)
+			}
+		}
+	}
+	// 19 days at -1 %/day: the latest K is 19 % below baseline.
+	if !strings.Contains(md.String(), "-19.0 %") {
+		t.Errorf("change column wrong:\n%s", md.String())
+	}
+	if !strings.Contains(md.String(), "learning baseline") {
+		t.Errorf("a tank without baseline is not shown as learning")
+	}
+	if !strings.Contains(html.String(), "<svg") {
+		t.Errorf("html has no trend chart")
+	}
+}
