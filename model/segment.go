@@ -152,10 +152,15 @@ type Segmenter struct {
 	h1, h2   float64
 	estimate bool
 
-	// history of filtered samples from absolute index base on
+	// history of filtered samples from absolute index base on, one slice
+	// per field (hq only when metered)
 	base int
-	hist []hsample
-	done int // samples processed by the detector
+	ht   []int64
+	hr   []float64 // raw reading, m
+	hy   []float64 // median-of-5 level, m
+	hq   []float64 // metered inflow, m^3/s
+	hk   []bool    // spike
+	done int       // samples processed by the detector
 
 	state      int
 	stateStart int
@@ -180,15 +185,6 @@ type Segmenter struct {
 	anyEmit       bool
 	stats         SegmentStats
 	scratch       []float64
-}
-
-// hsample is one filtered sample.
-type hsample struct {
-	t int64
-	r float64 // raw reading, m
-	y float64 // median-of-5 level, m
-	q float64 // metered inflow, m^3/s (NaN when not metered)
-	k bool    // spike
 }
 
 // NewSegmenter returns a Segmenter for tank t (its ID names the segments and
@@ -320,14 +316,29 @@ func (s *Segmenter) accept(t int64, h, q float64) {
 	}
 }
 
-// med5 is the median of five values without data-dependent branches (the
-// builtin min and max compile to MINSD/MAXSD on amd64; the inputs are never
-// NaN): f and g are the second and third smallest of a..d in some order, and
-// the median of five is the median of e, f and g.
+// med5 is the median of five values without data-dependent branches: f and
+// g are the second and third smallest of a..d in some order, and the median
+// of five is the median of e, f and g. The values are compared as
+// order-preserving integer keys (see fkey), for which the builtin min and max
+// are single conditional moves; the inputs are never NaN.
 func med5(a, b, c, d, e float64) float64 {
-	f := max(min(a, b), min(c, d))
-	g := min(max(a, b), max(c, d))
-	return max(min(e, f), min(max(e, f), g))
+	ka, kb, kc, kd, ke := fkey(a), fkey(b), fkey(c), fkey(d), fkey(e)
+	f := max(min(ka, kb), min(kc, kd))
+	g := min(max(ka, kb), max(kc, kd))
+	return unkey(max(min(ke, f), min(max(ke, f), g)))
+}
+
+// fkey maps a non-NaN float64 to an int64 with the same order (-0 sorts
+// just below +0): non-negative values keep their bits, negative ones have
+// all but the sign bit flipped.
+func fkey(x float64) int64 {
+	b := int64(math.Float64bits(x))
+	return b ^ (b >> 63 & math.MaxInt64)
+}
+
+// unkey inverts fkey.
+func unkey(k int64) float64 {
+	return math.Float64frombits(uint64(k ^ (k >> 63 & math.MaxInt64)))
 }
 
 // filter emits filtered sample j using accepted samples up to hi.
@@ -363,7 +374,13 @@ func (s *Segmenter) emit(j, p int, med float64) {
 	if spike {
 		s.stats.Spikes++
 	}
-	s.hist = append(s.hist, hsample{t: s.rt[p], r: raw, y: med, q: s.rq[p], k: spike})
+	s.ht = append(s.ht, s.rt[p])
+	s.hr = append(s.hr, raw)
+	s.hy = append(s.hy, med)
+	s.hk = append(s.hk, spike)
+	if s.metered {
+		s.hq = append(s.hq, s.rq[p])
+	}
 	s.step(j)
 	s.done = j + 1
 }
@@ -438,15 +455,15 @@ func (s *Segmenter) CommittedNs() int64 {
 	switch s.state {
 	case stQuiet:
 		if s.idleStart < s.done {
-			pend = s.hist[s.idleStart-s.base].t
+			pend = s.tAt(s.idleStart)
 		}
 		if s.maxdq.n() > 0 {
-			pend = min(pend, s.hist[s.maxdq.front()-s.base].t)
+			pend = min(pend, s.tAt(s.maxdq.front()))
 		}
 	default:
-		pend = s.hist[s.knee-s.base].t
+		pend = s.tAt(s.knee)
 		if s.idleKeep >= 0 && s.idleKeep < s.done {
-			pend = min(pend, s.hist[s.idleKeep-s.base].t)
+			pend = min(pend, s.tAt(s.idleKeep))
 		}
 	}
 	if len(s.queue) > 0 {
@@ -494,11 +511,16 @@ func (s *Segmenter) compact() {
 		}
 	}
 	drop := keep - s.base
-	if drop < 1024 || drop < len(s.hist)/2 {
+	if drop < 1024 || drop < len(s.ht)/2 {
 		return
 	}
-	n := copy(s.hist, s.hist[drop:])
-	s.hist = s.hist[:n]
+	s.ht = s.ht[:copy(s.ht, s.ht[drop:])]
+	s.hr = s.hr[:copy(s.hr, s.hr[drop:])]
+	s.hy = s.hy[:copy(s.hy, s.hy[drop:])]
+	s.hk = s.hk[:copy(s.hk, s.hk[drop:])]
+	if s.metered {
+		s.hq = s.hq[:copy(s.hq, s.hq[drop:])]
+	}
 	s.base = keep
 }
 

@@ -1,9 +1,13 @@
 package model
 
-import "math"
+import (
+	"math"
+	"slices"
+)
 
-func (s *Segmenter) tAt(i int) int64   { return s.hist[i-s.base].t }
-func (s *Segmenter) yAt(i int) float64 { return s.hist[i-s.base].y }
+func (s *Segmenter) tAt(i int) int64    { return s.ht[i-s.base] }
+func (s *Segmenter) yAt(i int) float64  { return s.hy[i-s.base] }
+func (s *Segmenter) spikeAt(i int) bool { return s.hk[i-s.base] }
 
 // step runs the event detector on filtered sample i.
 func (s *Segmenter) step(i int) {
@@ -93,7 +97,7 @@ func (s *Segmenter) quietStep(i int, t int64, y float64) {
 		s.idleKeep = s.idleStart
 		return
 	}
-	if s.metered && s.hist[i-s.base].q > 0 {
+	if s.metered && s.hq[i-s.base] > 0 {
 		s.endIdle(i - 1)
 		s.idleStart = i + 1
 		s.cutAt = math.MaxInt64
@@ -301,34 +305,51 @@ func (s *Segmenter) endIdle(b int) {
 // fillSamples copies the non-spike samples of [a, b] into g and counts
 // spikes and gaps.
 func (s *Segmenter) fillSamples(g *Segment, a, b int) {
-	n, sp, gaps := 0, 0, 0
-	for j := a; j <= b; j++ {
-		if s.hist[j-s.base].k {
+	x0, x1 := a-s.base, b-s.base+1
+	sp := 0
+	for _, k := range s.hk[x0:x1] {
+		if k {
 			sp++
-		} else {
-			n++
-		}
-		if j > a && s.tAt(j)-s.tAt(j-1) > s.gapNs {
-			gaps++
 		}
 	}
+	g.Spikes, g.GapCount = sp, s.gaps(a, b)
+	if sp == 0 {
+		// the common case: whole runs, copied without a per-sample test
+		g.TimeNs = slices.Clone(s.ht[x0:x1])
+		g.HeadM = slices.Clone(s.hr[x0:x1])
+		if s.metered {
+			g.InflowM3s = slices.Clone(s.hq[x0:x1])
+		}
+		return
+	}
+	n := x1 - x0 - sp
 	g.TimeNs = make([]int64, 0, n)
 	g.HeadM = make([]float64, 0, n)
 	if s.metered {
 		g.InflowM3s = make([]float64, 0, n)
 	}
-	for j := a; j <= b; j++ {
-		x := j - s.base
-		if s.hist[x].k {
+	for x := x0; x < x1; x++ {
+		if s.hk[x] {
 			continue
 		}
-		g.TimeNs = append(g.TimeNs, s.hist[x].t)
-		g.HeadM = append(g.HeadM, s.hist[x].r)
+		g.TimeNs = append(g.TimeNs, s.ht[x])
+		g.HeadM = append(g.HeadM, s.hr[x])
 		if s.metered {
-			g.InflowM3s = append(g.InflowM3s, s.hist[x].q)
+			g.InflowM3s = append(g.InflowM3s, s.hq[x])
 		}
 	}
-	g.Spikes, g.GapCount = sp, gaps
+}
+
+// gaps counts the steps longer than the gap limit between samples of [a, b].
+func (s *Segmenter) gaps(a, b int) int {
+	n := 0
+	t := s.ht[a-s.base : b-s.base+1]
+	for j := 1; j < len(t); j++ {
+		if t[j]-t[j-1] > s.gapNs {
+			n++
+		}
+	}
+	return n
 }
 
 func (s *Segmenter) finishFill(k, e int) {
@@ -340,7 +361,7 @@ func (s *Segmenter) finishFill(k, e int) {
 	}
 	sp, gaps := 0, 0
 	for j := k; j <= e; j++ {
-		if s.hist[j-s.base].k {
+		if s.spikeAt(j) {
 			sp++
 		}
 		if j > k && s.tAt(j)-s.tAt(j-1) > s.gapNs {
@@ -382,8 +403,8 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 	p := math.NaN()
 	s.scratch = s.scratch[:0]
 	for j := max(e+1, d-4096); j <= d; j++ {
-		if !s.hist[j-s.base].k {
-			s.scratch = append(s.scratch, s.hist[j-s.base].r)
+		if !s.spikeAt(j) {
+			s.scratch = append(s.scratch, s.hr[j-s.base])
 		}
 	}
 	if len(s.scratch) >= 3 {
@@ -422,7 +443,7 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 	}
 	kept := 0
 	for j := a; j <= b; j++ {
-		if !s.hist[j-s.base].k {
+		if !s.spikeAt(j) {
 			kept++
 		}
 	}
@@ -447,7 +468,7 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 	// spikes and gaps over the whole fall, not only the kept part
 	sp, gaps := 0, 0
 	for j := k; j <= e; j++ {
-		if s.hist[j-s.base].k {
+		if s.spikeAt(j) {
 			sp++
 		}
 		if j > k && s.tAt(j)-s.tAt(j-1) > s.gapNs {
@@ -547,7 +568,7 @@ func (s *Segmenter) massK(i, j int, datum float64) float64 {
 		dt := float64(s.tAt(x)-s.tAt(x-1)) * 1e-9
 		den += 0.5 * (r0 + r1) * dt
 		if s.metered {
-			q0, q1 := s.hist[x-1-s.base].q, s.hist[x-s.base].q
+			q0, q1 := s.hq[x-1-s.base], s.hq[x-s.base]
 			if q0 > 0 || q1 > 0 {
 				num += 0.5 * (max(q0, 0) + max(q1, 0)) * dt
 			}
