@@ -167,8 +167,7 @@ type Segmenter struct {
 	idleStart  int
 	cutAt      int64 // time at which the idle stretch is cut at cutBound
 	cutBound   int64
-	maxdq      deque
-	mindq      deque
+	win        extremes // level extremes over Window, in the quiet state
 	knee       int
 	idleKeep   int     // idle start to resume if the current fall/rise proves slow; -1: none
 	wj         int     // sample about Window before the current one, in a fall/rise
@@ -457,8 +456,8 @@ func (s *Segmenter) CommittedNs() int64 {
 		if s.idleStart < s.done {
 			pend = s.tAt(s.idleStart)
 		}
-		if s.maxdq.n() > 0 {
-			pend = min(pend, s.tAt(s.maxdq.front()))
+		if s.win.n() > 0 {
+			pend = min(pend, s.tAt(s.win.argMax()))
 		}
 	default:
 		pend = s.tAt(s.knee)
@@ -498,11 +497,8 @@ func (s *Segmenter) compact() {
 	switch s.state {
 	case stQuiet:
 		keep = min(keep, s.idleStart)
-		if s.maxdq.n() > 0 {
-			keep = min(keep, s.maxdq.front())
-		}
-		if s.mindq.n() > 0 {
-			keep = min(keep, s.mindq.front())
+		if s.win.n() > 0 {
+			keep = min(keep, s.win.argMax(), s.win.argMin())
 		}
 	default:
 		keep = min(keep, s.knee)
@@ -522,24 +518,4 @@ func (s *Segmenter) compact() {
 		s.hq = s.hq[:copy(s.hq, s.hq[drop:])]
 	}
 	s.base = keep
-}
-
-// deque is a double-ended queue of absolute sample indices.
-type deque struct {
-	v    []int
-	head int
-}
-
-func (d *deque) n() int     { return len(d.v) - d.head }
-func (d *deque) front() int { return d.v[d.head] }
-func (d *deque) back() int  { return d.v[len(d.v)-1] }
-func (d *deque) popBack()   { d.v = d.v[:len(d.v)-1] }
-func (d *deque) reset()     { d.v, d.head = d.v[:0], 0 }
-func (d *deque) popFront()  { d.head++ }
-func (d *deque) pushBack(i int) {
-	if d.head > 64 && d.head >= len(d.v)/2 {
-		n := copy(d.v, d.v[d.head:])
-		d.v, d.head = d.v[:n], 0
-	}
-	d.v = append(d.v, i)
 }

@@ -70,28 +70,18 @@ func (s *Segmenter) step(i int) {
 }
 
 func (s *Segmenter) quietStep(i int, t int64, y float64) {
-	for s.maxdq.n() > 0 && s.yAt(s.maxdq.back()) <= y {
-		s.maxdq.popBack()
-	}
-	s.maxdq.pushBack(i)
-	for s.mindq.n() > 0 && s.yAt(s.mindq.back()) >= y {
-		s.mindq.popBack()
-	}
-	s.mindq.pushBack(i)
+	s.win.push(i, t, y)
 	lo := t - s.winNs
-	for s.tAt(s.maxdq.front()) < lo {
-		s.maxdq.popFront()
+	for s.win.oldestT() < lo {
+		s.win.popFront()
 	}
-	for s.tAt(s.mindq.front()) < lo {
-		s.mindq.popFront()
-	}
-	if m := s.maxdq.front(); y < s.yAt(m)-s.trig {
+	if m := s.win.argMax(); y < s.yAt(m)-s.trig {
 		k := s.kneeDown(m, i)
 		s.beginFall(k, i)
 		s.idleKeep = s.idleStart
 		return
 	}
-	if m := s.mindq.front(); y > s.yAt(m)+s.trig {
+	if m := s.win.argMin(); y > s.yAt(m)+s.trig {
 		k := s.kneeUp(m, i)
 		s.beginRise(k, i)
 		s.idleKeep = s.idleStart
@@ -250,8 +240,7 @@ func (s *Segmenter) setTimeout() {
 
 func (s *Segmenter) toQuiet(f, i int) {
 	s.state, s.stateStart, s.idleStart = stQuiet, f, f
-	s.maxdq.reset()
-	s.mindq.reset()
+	s.win.reset()
 	s.cutAt = math.MaxInt64
 	if f > i {
 		return
@@ -262,15 +251,7 @@ func (s *Segmenter) toQuiet(f, i int) {
 		if s.tAt(j) < lo {
 			continue
 		}
-		y := s.yAt(j)
-		for s.maxdq.n() > 0 && s.yAt(s.maxdq.back()) <= y {
-			s.maxdq.popBack()
-		}
-		s.maxdq.pushBack(j)
-		for s.mindq.n() > 0 && s.yAt(s.mindq.back()) >= y {
-			s.mindq.popBack()
-		}
-		s.mindq.pushBack(j)
+		s.win.push(j, s.tAt(j), s.yAt(j))
 	}
 }
 
