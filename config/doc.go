@@ -75,7 +75,7 @@
 //	  detection                  optional
 //	    baseline_drains          (8) at least 3
 //	    design_k                 optional, m^2.5/s (unit optional)
-//	    false_alarm_interval     (5 y) mean time between false alarms per detector
+//	    false_alarm_interval     (10 y) mean time between false outlet findings per tank (all charts together)
 //	    cusum_k                  (0.5) reference value, standard deviations
 //	    ewma_lambda              (0.1) in (0, 1]
 //	    maintenance_fraction     (0.8) in (0, 1)

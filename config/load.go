@@ -598,7 +598,7 @@ func (d *decoder) detection(n *yaml.Node, path string) Detection {
 			return ""
 		}),
 		DesignKM25s:         quantity(f, "design_k", 0, ParseOutletConstant, positive),
-		FalseAlarmInterval:  quantity(f, "false_alarm_interval", 5*JulianYearS*time.Second, ParseDuration, positiveDuration),
+		FalseAlarmInterval:  quantity(f, "false_alarm_interval", 10*JulianYearS*time.Second, ParseDuration, positiveDuration),
 		CusumK:              quantity(f, "cusum_k", 0.5, parseNumber, positive),
 		EWMALambda:          quantity(f, "ewma_lambda", 0.1, parseNumber, between(0, 1, true, false)),
 		MaintenanceFraction: quantity(f, "maintenance_fraction", 0.8, parseNumber, between(0, 1, true, true)),

@@ -102,7 +102,7 @@ tanks:
 	d := a.Detection
 	if d.BaselineDrains != 8 || d.CusumK != 0.5 || d.EWMALambda != 0.1 || d.MaintenanceFraction != 0.8 ||
 		d.MinDropM != 0.05 || d.MinDrainDuration != 2*time.Minute || d.Transient != 30*time.Second ||
-		d.Settle != 5*time.Minute || d.GapLimit != 5*time.Minute || d.FalseAlarmInterval != 5*31557600*time.Second {
+		d.Settle != 5*time.Minute || d.GapLimit != 5*time.Minute || d.FalseAlarmInterval != 10*31557600*time.Second {
 		t.Errorf("detection defaults = %+v", d)
 	}
 	o := c.Outputs

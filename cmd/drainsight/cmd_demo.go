@@ -217,7 +217,7 @@ func writeDemoHeader(b *strings.Builder, url, bucket, org, tokenEnv string) {
 	if url != "" {
 		fmt.Fprintf(b, "    influx:\n      url: %s\n      bucket: %q\n      org: %q\n      token_env: %s\n      query_window: 24 h\n      settle_delay: 0 s\n", url, bucket, org, tokenEnv)
 	}
-	fmt.Fprintf(b, "\ndefaults:\n  detection:\n    false_alarm_interval: 5 y\n\ntanks:\n")
+	fmt.Fprintf(b, "\ndefaults:\n  detection:\n    false_alarm_interval: 10 y\n\ntanks:\n")
 }
 
 func writeDemoTank(b *strings.Builder, spec sim.TankSpec, ds demoSensor, file string, fromInflux, metered bool) {

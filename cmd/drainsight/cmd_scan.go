@@ -85,6 +85,13 @@ func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath
 	defer j.Close()
 	start := time.Now()
 	res, err := j.scan(ctx, opt)
+	runErr := err
+	if runErr == nil {
+		runErr = errTankFailures(res.failed())
+	}
+	if rerr := j.st.RecordRun("scan", time.Now().UnixNano(), runErr); rerr != nil {
+		log.Warn("recording the run failed", "err", rerr)
+	}
 	if err != nil {
 		return res, err
 	}
