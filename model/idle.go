@@ -43,71 +43,167 @@ func FitIdle(t *Tank, seg *Segment) (IdleFit, error) {
 	sc := scratchPool.Get().(*fitScratch)
 	defer scratchPool.Put(sc)
 	sc.grow(n)
-	tau, w0, w, scratch, out, y := sc.tau, sc.w0, sc.w, sc.s, sc.out, sc.z
-	for i, tn := range seg.TimeNs {
-		tau[i] = float64(tn-seg.TimeNs[0]) * 1e-9
-		v := seg.HeadM[i]
-		w0[i], y[i] = 0, 0
-		if !math.IsNaN(v) && !math.IsInf(v, 0) {
-			w0[i], y[i] = 1, v
-		}
-	}
-	// Longest run of identical readings.
+	ts, ys := seg.TimeNs, seg.HeadM
+	t0 := ts[0]
+	keep, z, gw := sc.out, sc.z, sc.w0
+	// The passes below read the segment directly (τ_i is recomputed, never
+	// stored) and do the arithmetic of robustLineFit with unit weights and
+	// no reweighting in the same order, so the results are the same.
+	//
+	// Pass 1: longest flat run, finite readings, sums of the first line.
 	run := 1
 	f.FlatRun = 1
-	for i := 1; i < n; i++ {
-		if math.Float64bits(seg.HeadM[i]) == math.Float64bits(seg.HeadM[i-1]) {
-			run++
-			f.FlatRun = max(f.FlatRun, run)
-		} else {
-			run = 1
+	var sw, swx, swz float64
+	nv := 0
+	for i, v := range ys {
+		keep[i] = !math.IsNaN(v) && !math.IsInf(v, 0)
+		if i > 0 {
+			if math.Float64bits(v) == math.Float64bits(ys[i-1]) {
+				run++
+				f.FlatRun = max(f.FlatRun, run)
+			} else {
+				run = 1
+			}
+		}
+		if keep[i] {
+			sw++
+			swx += float64(ts[i]-t0) * 1e-9
+			swz += v
+			nv++
 		}
 	}
-	// A plain line, a robust scale, then the line over readings within 5σ.
-	lf := robustLineFit(tau, y, w0, w, scratch, out, false, 1.345, 5, 0)
+	if nv < 3 {
+		return IdleFit{}, fmt.Errorf("model: idle fit: tank %q: %d usable samples, need at least 3 at distinct times", seg.Tank, nv)
+	}
+	lf := idleLine(ts, ys, keep, sw, swx, swz, nv)
+	// Robust scale of the residuals, then the outliers beyond 5σ.
+	abs := sc.s[:0]
+	for i, v := range ys {
+		if keep[i] {
+			abs = append(abs, math.Abs(v-lf.a-lf.b*(float64(ts[i]-t0)*1e-9)))
+		}
+	}
+	sigma := madScale * medianInPlace(abs)
+	if !(sigma > 0) {
+		var ss float64
+		for i, v := range ys {
+			if keep[i] {
+				e := v - lf.a - lf.b*(float64(ts[i]-t0)*1e-9)
+				ss += e * e
+			}
+		}
+		sigma = math.Sqrt(ss / float64(lf.n))
+	}
+	lim := 5 * sigma
+	nOut := 0
+	if sigma > 0 {
+		for i, v := range ys {
+			if keep[i] && math.Abs(v-lf.a-lf.b*(float64(ts[i]-t0)*1e-9)) > lim {
+				keep[i] = false
+				nOut++
+			}
+		}
+	}
+	if nOut > 0 {
+		sw, swx, swz, nv = 0, 0, 0, 0
+		for i, v := range ys {
+			if keep[i] {
+				sw++
+				swx += float64(ts[i]-t0) * 1e-9
+				swz += v
+				nv++
+			}
+		}
+		lf = idleLine(ts, ys, keep, sw, swx, swz, nv)
+	}
 	if lf.n < 3 || !(lf.sxx > 0) {
 		return IdleFit{}, fmt.Errorf("model: idle fit: tank %q: %d usable samples, need at least 3 at distinct times", seg.Tank, lf.n)
 	}
-	f.N = lf.n
-	f.NoiseM = lf.sigma
-	f.RateMs = lf.b
-	f.RateSEMs = math.Sqrt(lf.ss / float64(lf.n-2) / lf.sxx)
-	var sum float64
-	for i, wi := range w {
-		if wi > 0 {
-			sum += y[i]
+	var ss, sum float64
+	for i, v := range ys {
+		if keep[i] {
+			e := v - lf.a - lf.b*(float64(ts[i]-t0)*1e-9)
+			ss += e * e
+			sum += v
 		}
 	}
+	f.N = lf.n
+	f.NoiseM = sigma
+	f.RateMs = lf.b
+	f.RateSEMs = math.Sqrt(ss / float64(lf.n-2) / lf.sxx)
 	f.MeanHeadM = sum / float64(lf.n)
 	// Leak constant on the transformed scale.
 	ht, err := TransformFor(t)
 	if err != nil {
 		return f, nil
 	}
-	z := scratch
-	for i, wi := range w {
-		z[i] = 0
-		if !(wi > 0) {
-			w0[i] = 0
+	sw, swx, swz, nv = 0, 0, 0, 0
+	for i, v := range ys {
+		z[i], gw[i] = 0, 0
+		if !keep[i] {
 			continue
 		}
-		if !(y[i] > 0) {
+		if !(v > 0) {
 			return f, nil
 		}
-		fz, g := ht.fg(y[i])
-		z[i], w0[i] = fz, g*g
+		fz, g := ht.fg(v)
+		if wi := g * g; wi > 0 {
+			z[i], gw[i] = fz, wi
+			sw += wi
+			swx += wi * (float64(ts[i]-t0) * 1e-9)
+			swz += wi * fz
+			nv++
+		}
 	}
-	lk := fitLine(tau, z, w0)
-	if lk.n >= 3 && lk.sxx > 0 {
+	if nv < 2 || !(sw > 0) {
+		return f, nil
+	}
+	xb, zb := swx/sw, swz/sw
+	var sxx, sxz float64
+	for i, wi := range gw {
+		if wi > 0 {
+			dx := float64(ts[i]-t0)*1e-9 - xb
+			sxx += wi * dx * dx
+			sxz += wi * dx * (z[i] - zb)
+		}
+	}
+	b := sxz / sxx
+	a := zb - b*xb
+	if nv >= 3 && sxx > 0 {
 		var ss float64
-		for i, wi := range w0 {
+		for i, wi := range gw {
 			if wi > 0 {
-				e := z[i] - lk.a - lk.b*tau[i]
+				e := z[i] - a - b*(float64(ts[i]-t0)*1e-9)
 				ss += wi * e * e
 			}
 		}
-		f.LeakKM25s = -lk.b
-		f.LeakKSEM25s = math.Sqrt(ss / float64(lk.n-2) / lk.sxx)
+		f.LeakKM25s = -b
+		f.LeakKSEM25s = math.Sqrt(ss / float64(nv-2) / sxx)
 	}
 	return f, nil
+}
+
+// idleLine finishes the unit-weight line over the kept readings from its
+// sums (sw = count, swx = Σ τ, swz = Σ y), with the centred second pass of
+// fitLine.
+func idleLine(ts []int64, ys []float64, keep []bool, sw, swx, swz float64, n int) lineFit {
+	lf := lineFit{sumW: sw, n: n}
+	if n < 2 {
+		lf.a, lf.b = math.NaN(), math.NaN()
+		return lf
+	}
+	t0 := ts[0]
+	xb, zb := swx/sw, swz/sw
+	var sxx, sxz float64
+	for i, v := range ys {
+		if keep[i] {
+			dx := float64(ts[i]-t0)*1e-9 - xb
+			sxx += dx * dx
+			sxz += dx * (v - zb)
+		}
+	}
+	lf.xbar, lf.sxx = xb, sxx
+	lf.b = sxz / sxx
+	lf.a = zb - lf.b*xb
+	return lf
 }
