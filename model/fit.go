@@ -398,7 +398,7 @@ func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d fl
 	// of order (block duration / drain duration)^2), which saves a
 	// logarithm per sample.
 	const lBlock = 8
-	hint := -1
+	hint, hintB := -1, -1
 	var la, lb, ta, tb float64
 	blockEnd := -1
 	for i, ti := range tt {
@@ -415,7 +415,9 @@ func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d fl
 			blockEnd = min(i+lBlock, len(tt)-1)
 			ta, tb = ti, tt[blockEnd]
 			la = ht.logMoment(h)
-			lb = ht.logMoment(ht.Inv(f0 - k*tb))
+			var hb float64
+			hb, hintB = ht.inv(f0-k*tb, hintB)
+			lb = ht.logMoment(hb)
 		}
 		lh := la
 		if tb > ta {

@@ -52,6 +52,10 @@ type HeadTransform struct {
 	poly            [][4]float64 // per interval: F = c0 + t(c1 + t(c2 + t c3)), t in [0,1]
 	lNode, lDer     []float64    // L(u) and du*dL/du at the nodes, see logMoment
 	breaksU         []float64    // kinks of the area in u, ascending
+	// fIdx[b] is the last interval whose start node is <= b fTop/len(fIdx)-1:
+	// where Inv starts its interval search without a hint.
+	fIdx     []int32
+	fIdxStep float64 // len(fIdx)-1 over fTop
 }
 
 // NewHeadTransform builds the transform for a tank. It returns an error when
@@ -188,6 +192,18 @@ func (ht *HeadTransform) buildTable() {
 	}
 	ht.fTop = ht.fNode[n]
 	ht.aTop = ht.area(ht.hMax)
+	if ht.fTop > 0 {
+		ht.fIdx = make([]int32, n+1)
+		ht.fIdxStep = float64(n) / ht.fTop
+		j := 0
+		for b := range ht.fIdx {
+			fb := float64(b) / ht.fIdxStep
+			for j < n-1 && ht.fNode[j+1] <= fb {
+				j++
+			}
+			ht.fIdx[b] = int32(j)
+		}
+	}
 }
 
 // MaxHeadM is the drainable height of the tank, m.
@@ -347,23 +363,15 @@ func (ht *HeadTransform) inv(f float64, hint int) (float64, int) {
 	n := len(ht.poly)
 	j := hint
 	if j < 0 || j >= n {
-		lo, hi := 0, n
-		for hi-lo > 1 {
-			mid := (lo + hi) >> 1
-			if nodes[mid] <= f {
-				lo = mid
-			} else {
-				hi = mid
-			}
-		}
-		j = lo
-	} else {
-		for j > 0 && nodes[j] > f {
-			j--
-		}
-		for j < n-1 && nodes[j+1] <= f {
-			j++
-		}
+		// no hint: start from the interval index of f's bucket, a few
+		// intervals at most below the one sought
+		j = int(ht.fIdx[min(int(f*ht.fIdxStep), len(ht.fIdx)-1)])
+	}
+	for j > 0 && nodes[j] > f {
+		j--
+	}
+	for j < n-1 && nodes[j+1] <= f {
+		j++
 	}
 	c := &ht.poly[j]
 	span := nodes[j+1] - nodes[j]
