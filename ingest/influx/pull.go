@@ -76,6 +76,7 @@ func Windows(startNs, stopNs int64, width time.Duration) [][2]int64 {
 // tankMark remembers what was delivered for one tank, so that a retried
 // query skips it.
 type tankMark struct {
+	name   string
 	has    bool  // something was delivered
 	lastNs int64 // time of the last delivered sample
 	atLast int   // samples delivered at lastNs (several series may share a time)
@@ -110,46 +111,30 @@ func (s *Source) Pull(ctx context.Context, tanks []string, startNs, stopNs int64
 		for _, m := range marks {
 			m.runSet = false
 		}
-		res, err := s.c.query.Query(ctx, flux)
+		body, err := s.c.openQuery(ctx, flux)
 		if err != nil {
 			return err
 		}
-		defer res.Close() // Next already closed it when it returned false
+		defer body.Close()
+		rows := newCSVRows(body, tag)
 		var cur *tankMark
-		curTank := ""
-		for res.Next() {
-			rec := res.Record()
-			vals := rec.Values()
-			tank, ok := vals[tag].(string)
-			if !ok {
-				continue
+		for {
+			tank, t, v, ok, err := rows.next()
+			if err != nil {
+				return err
 			}
-			ts, ok := vals["_time"].(time.Time)
 			if !ok {
-				continue
+				return nil
 			}
-			t := ts.UnixNano()
 			if t >= stopNs || t < startNs {
 				continue
 			}
-			var v float64
-			switch x := vals["_value"].(type) {
-			case float64:
-				v = x
-			case int64:
-				v = float64(x)
-			case uint64:
-				v = float64(x)
-			default:
-				continue
-			}
-			if cur == nil || tank != curTank {
-				cur = marks[tank]
+			if cur == nil || string(tank) != cur.name {
+				cur = marks[string(tank)] // no allocation: map index by string(bytes)
 				if cur == nil {
-					cur = &tankMark{}
-					marks[tank] = cur
+					cur = &tankMark{name: string(tank)}
+					marks[cur.name] = cur
 				}
-				curTank = tank
 			}
 			if cur.runSet && t == cur.runNs {
 				cur.runK++
@@ -164,10 +149,9 @@ func (s *Source) Pull(ctx context.Context, tanks []string, startNs, stopNs int64
 			} else {
 				cur.has, cur.lastNs, cur.atLast = true, t, 1
 			}
-			add(tank, t, v)
+			add(cur.name, t, v)
 			n++
 		}
-		return res.Err()
 	})
 	return n, err
 }
