@@ -42,7 +42,7 @@ type Influx struct {
 	FitsMeasurement     string        // default "outlet_fit": write-back of drain fits
 	FindingsMeasurement string        // default "outlet_finding": write-back of findings
 	SettleDelay         time.Duration // default 5 min: data younger than this is not read yet
-	Overlap             time.Duration // default 1 h: each scan re-reads this much before the last point
+	Overlap             time.Duration // default 1 h: re-read before a tank's checkpoint; the command always re-reads at least 12 h
 }
 
 // Token returns the token from TokenEnv or TokenFile (surrounding white space

@@ -36,7 +36,7 @@
 //	    fits_measurement         (outlet_fit) write-back of fits
 //	    findings_measurement     (outlet_finding) write-back of findings
 //	    settle_delay             (5 min) data younger than this waits for the next scan
-//	    overlap                  (1 h) each scan re-reads this much before its last point
+//	    overlap                  (1 h) extra re-read before a tank's checkpoint; at least 12 h is always re-read
 //	defaults                     optional; any tank key except id, merged into every tank:
 //	                             mappings merge key by key, lists and values are replaced
 //	tanks[]                      at least one

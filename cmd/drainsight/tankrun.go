@@ -18,11 +18,12 @@ import (
 	"drainsight/store"
 )
 
-// lookback is how far before a tank's committed time each scan re-reads, so
-// that the segmenter sees a drain still open at the boundary whole and has
+// minLookback is the least a scan re-reads before a tank's committed time,
+// so that the segmenter sees a drain still open at the boundary whole and has
 // enough quiet data to estimate the noise (model.Segmenter.CommittedNs asks
-// for at least 8 h and more than the longest drain).
-const lookback = 12 * time.Hour
+// for at least 8 h and more than the longest drain). A site's influx.overlap
+// may ask for more.
+const minLookback = 12 * time.Hour
 
 // encodeState and decodeState keep the detector state as gob, which carries
 // the NaN the statistics use for "not yet known" (JSON cannot).
@@ -106,7 +107,7 @@ func openTankRun(st *store.Store, p *plan, log *slog.Logger) (*tankRun, int64, e
 	from := int64(0)
 	if ok {
 		opt.EmitFromNs = cp.CommittedNs
-		from = cp.CommittedNs - int64(lookback)
+		from = cp.CommittedNs - int64(max(minLookback, p.lookback))
 	}
 	r.seg = model.NewSegmenter(&p.tank, opt)
 	return r, from, nil

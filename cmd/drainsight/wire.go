@@ -18,6 +18,8 @@ type plan struct {
 	segOpt model.SegmentOptions
 	fitOpt model.FitOptions
 	detOpt detect.Options
+	// lookback is the site's influx.overlap (0 for file sources).
+	lookback time.Duration
 }
 
 // buildPlans turns the loaded config into one plan per tank. Config
@@ -29,6 +31,9 @@ func buildPlans(cfg *config.Config) ([]*plan, error) {
 		p, err := buildPlan(ct)
 		if err != nil {
 			return nil, fmt.Errorf("%s: tank %s: %w", cfg.File, ct.ID, err)
+		}
+		if s := cfg.Site(ct.Site); s != nil && s.Influx != nil {
+			p.lookback = s.Influx.Overlap
 		}
 		plans = append(plans, p)
 	}
