@@ -59,10 +59,26 @@ const cusumNodes = 64
 //	L(u) = 1 + L(0) Φ(k - u - delta) + ∫_0^h L(x) φ(x + k - u - delta) dx
 //
 // (Φ(k - u - delta) is the chance of falling back to zero), solved by the
-// Nyström method on a 64-point Gauss-Legendre rule, which converges
+// Nyström method on a 64-point Gauss-Legendre rule (h <= 32; a composite
+// rule of 8 nodes per unit of h beyond, at most 512 nodes), which converges
 // exponentially because the normal kernel is smooth. For the lower chart use
-// delta -> -delta. It returns +Inf when the chart can never signal (h = +Inf).
-// It panics if k, h or headStart is NaN, h < 0 or headStart is outside [0, h].
+// delta -> -delta.
+//
+// The linear system I - P has a condition number of the order of the ARL,
+// so in double precision the solve loses all digits once the ARL passes
+// about 1e12 (it returned negative ARLs, and negative tail p-values, for
+// h of 40 and more at k = 0.5). Where Siegmund's approximation exceeds
+// cusumReliableARL (1e10) the ARL is extended from the largest reliable
+// interval h0 by Siegmund's exponential growth,
+//
+//	ARL(h) = ARL_Nyström(h0) × S(h) / S(h0),  S = SiegmundARL,
+//
+// which is accurate to the ratio's drift (the ratio ARL/S is constant to
+// 1e-3 beyond h of about 5; see TestCUSUMARLExtension). A head start u is
+// carried over as the same distance below the limit: the factor
+// ARL_Nyström(h0, max(0, u - (h - h0))) / ARL_Nyström(h0, 0). The result is
+// +Inf when it overflows. It panics if k, h or headStart is NaN, h < 0 or
+// headStart is outside [0, h].
 func CUSUMARL(k, h, delta, headStart float64) float64 {
 	if math.IsNaN(k) || math.IsNaN(h) || math.IsNaN(delta) || h < 0 || headStart < 0 || headStart > h {
 		panic(fmt.Sprintf("detect: CUSUMARL(k=%v, h=%v, delta=%v, headStart=%v) out of domain", k, h, delta, headStart))
@@ -74,8 +90,60 @@ func CUSUMARL(k, h, delta, headStart float64) float64 {
 		// Signals as soon as C > 0: a geometric run length.
 		return 1 / (1 - stdNormCDF(k-delta))
 	}
-	x, w := legendreNodes(0, h, 1, cusumNodes)
-	n := cusumNodes + 1 // index 0 is u = 0, then the nodes
+	if logSiegmundARL(k, h, delta) <= math.Log(cusumReliableARL) {
+		return cusumNystrom(k, h, delta, headStart)
+	}
+	// Largest h0 with Siegmund's ARL at the reliable limit (the log ARL is
+	// increasing in h).
+	f := func(x float64) float64 { return logSiegmundARL(k, x, delta) - math.Log(cusumReliableARL) }
+	h0 := 0.0
+	if f(0) < 0 {
+		h0 = bisect(f, 0, h, 1e-9)
+	}
+	// At h0 = 0 (delta far below k) the run length is geometric and exact.
+	base := 1 / stdNormCDF(delta-k)
+	if h0 > 0 {
+		base = cusumNystrom(k, h0, delta, 0)
+	}
+	arl := base * math.Exp(logSiegmundARL(k, h, delta)-logSiegmundARL(k, h0, delta))
+	if headStart > 0 && h0 > 0 {
+		arl *= cusumNystrom(k, h0, delta, math.Max(0, headStart-(h-h0))) / base
+	}
+	return arl
+}
+
+// cusumReliableARL is the largest ARL that the Nyström solve of CUSUMARL
+// and EWMAARL is trusted to (relative error about ARL × 1e-16 from the
+// conditioning of I - P, so 1e-6 here).
+const cusumReliableARL = 1e10
+
+// logSiegmundARL is the logarithm of SiegmundARL, computed without overflow
+// for large h.
+func logSiegmundARL(k, h, delta float64) float64 {
+	d := delta - k
+	b := h + 1.166
+	x := -2 * d * b
+	switch {
+	case math.Abs(d) < 1e-9:
+		return 2 * math.Log(b)
+	case x > 30:
+		// exp(x) dominates: log(exp(x) (1 + (-x - 1) exp(-x))) - log(2 d²).
+		return x + math.Log1p((-x-1)*math.Exp(-x)) - math.Log(2*d*d)
+	}
+	return math.Log((math.Exp(x) - x - 1) / (2 * d * d))
+}
+
+// cusumNystrom is the Nyström solution of Page's equation behind CUSUMARL.
+func cusumNystrom(k, h, delta, headStart float64) float64 {
+	var x, w []float64
+	if h <= 32 {
+		x, w = legendreNodes(0, h, 1, cusumNodes)
+	} else {
+		panels := min(64, int(math.Ceil(h)))
+		x, w = legendreNodes(0, h, panels, 8)
+	}
+	m := len(x)
+	n := m + 1 // index 0 is u = 0, then the nodes
 	pts := make([]float64, n)
 	copy(pts[1:], x)
 	p := make([]float64, n*n)
@@ -198,11 +266,24 @@ func ThresholdForARL(k, arl0 float64) float64 {
 //
 //	p ≈ 1 - exp(-n / ARL0(k, c))
 //
-// It turns a CUSUM statistic into a p-value for ranking tanks.
+// It turns a CUSUM statistic into a p-value for ranking tanks. ARL0 >= 1
+// (CUSUMARL stays positive for every c, see there), so p lies in [0, 1]; it
+// underflows to 0 once ARL0 exceeds about 1e308 n (c of several hundred).
 func cusumTailPValue(k, c float64, n int) float64 {
-	if c <= 0 || n <= 0 {
+	if !(c > 0) || n <= 0 {
 		return 1
 	}
-	arl := CUSUMARLTwoSided(k, c, 0, 0)
-	return -math.Expm1(-float64(n) / arl)
+	return tailPValue(float64(n), CUSUMARLTwoSided(k, c, 0, 0))
+}
+
+// tailPValue is 1 - exp(-n/arl), the geometric run-length chance of a signal
+// within n observations. The final clamp to [0, 1] only guards against a
+// non-finite or sub-1 ARL from a failed solve; the ARL functions themselves
+// stay in range.
+func tailPValue(n, arl float64) float64 {
+	if math.IsNaN(arl) || arl <= 0 {
+		return 1
+	}
+	p := -math.Expm1(-n / arl)
+	return math.Min(1, math.Max(0, p))
 }

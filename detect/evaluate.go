@@ -391,11 +391,13 @@ func (s *State) leakFinding(now time.Time, opt Options) (leak, drift *Finding) {
 	return &f, nil
 }
 
+// leakTailPValue is the chance that the healthy one-sided leak CUSUM
+// (k = leakK) reaches c within n idle periods, 1 - exp(-n/ARL0(c)), in [0, 1].
 func leakTailPValue(c float64, n int) float64 {
-	if c <= 0 {
+	if !(c > 0) || n <= 0 {
 		return 1
 	}
-	return -math.Expm1(-float64(n) / CUSUMARL(leakK, c, 0, 0))
+	return tailPValue(float64(n), CUSUMARL(leakK, c, 0, 0))
 }
 
 // slopeOLS fits y = a + b x and returns b with its standard error; ok is

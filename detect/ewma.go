@@ -49,9 +49,51 @@ func checkEWMA(lambda, l float64) {
 //	L(u) = 1 + (1/λ) ∫_{-c}^{c} L(y) φ((y - (1-λ)u)/λ - delta) dy,
 //
 // solved by the Nyström method on a composite Gauss-Legendre rule; the ARL is
-// L(0). It panics unless 0 < λ <= 1 and L > 0.
+// L(0).
+//
+// As for CUSUMARL, the solve is ill-conditioned once the ARL passes about
+// 1e12 (it returned negative ARLs from L of about 10 at λ = 0.1). With
+// q(L) = Φ(-L + delta/σ) + Φ(-L - delta/σ), σ = sqrt(λ/(2-λ)), the chance
+// that the stationary EWMA lies beyond a limit, the Nyström value is used
+// while 1/q(L) <= 1e9; beyond, with L0 the limit where 1/q(L0) = 1e9,
+//
+//	ARL(L) = max(ARL_Nyström(L0), 1/q(L)).
+//
+// Both terms are lower bounds of the true ARL in practice (the ARL grows
+// with L; the union bound P(run length <= n) <= n q(L) holds for the
+// zero-start chart, whose variance is below σ², and the ratio ARL q is above
+// 1 and falls slowly towards 1 as L grows: 1.21 at L = 6, 1.12 at L = 7 for
+// λ = 0.1), so a tail p-value from it errs on the large (conservative) side.
+// It panics unless 0 < λ <= 1 and L > 0.
 func EWMAARL(lambda, l, delta float64) float64 {
 	checkEWMA(lambda, l)
+	sigma := math.Sqrt(lambda / (2 - lambda))
+	logQ := func(l float64) float64 {
+		a := math.Log(stdNormCDF(-l + delta/sigma))
+		b := math.Log(stdNormCDF(-l - delta/sigma))
+		hi, lo := math.Max(a, b), math.Min(a, b)
+		return hi + math.Log1p(math.Exp(lo-hi))
+	}
+	limit := -math.Log(ewmaReliableARL)
+	if logQ(l) >= limit {
+		return ewmaNystrom(lambda, l, delta)
+	}
+	// logQ falls with L; find L0 with logQ(L0) = limit.
+	f := func(x float64) float64 { return limit - logQ(x) }
+	lo := 0.05
+	if f(lo) >= 0 {
+		return math.Exp(-logQ(l))
+	}
+	l0 := bisect(f, lo, l, 1e-9)
+	return math.Max(ewmaNystrom(lambda, l0, delta), math.Exp(-logQ(l)))
+}
+
+// ewmaReliableARL is the stationary exceedance scale 1/q up to which the
+// EWMA Nyström solve is used (its ARL is then at most about 1.5e9).
+const ewmaReliableARL = 1e9
+
+// ewmaNystrom is the Nyström solution of Crowder's equation behind EWMAARL.
+func ewmaNystrom(lambda, l, delta float64) float64 {
 	c := l * math.Sqrt(lambda/(2-lambda))
 	x, w := ewmaGrid(lambda, c)
 	n := len(x)
@@ -124,12 +166,12 @@ func EWMALimitForARL(lambda, arl0 float64) float64 {
 
 // ewmaTailPValue is the chance that a healthy two-sided EWMA with smoothing λ
 // reaches |E| >= a within n observations, from the geometric approximation
-// p ≈ 1 - exp(-n / ARL0) with ARL0 the ARL for the limit a.
+// p ≈ 1 - exp(-n / ARL0) with ARL0 the ARL for the limit a (EWMAARL, which
+// stays positive for every a), so p lies in [0, 1].
 func ewmaTailPValue(lambda, a float64, n int) float64 {
 	sigma := math.Sqrt(lambda / (2 - lambda))
-	if a <= 0 || n <= 0 {
+	if !(a > 0) || n <= 0 {
 		return 1
 	}
-	arl := EWMAARL(lambda, a/sigma, 0)
-	return -math.Expm1(-float64(n) / arl)
+	return tailPValue(float64(n), EWMAARL(lambda, a/sigma, 0))
 }

@@ -13,7 +13,9 @@ import (
 //
 //	q_(i) = min_{j >= i} min(1, m p_(j) / j),
 //
-// and reject[i] is q_i <= alpha. NaN p-values are treated as 1.
+// and reject[i] is q_i <= alpha. NaN p-values are treated as 1, and a value
+// outside [0, 1] (a caller's bug, never produced by this package) is clamped
+// to it, so every q-value lies in [0, 1].
 func BenjaminiHochberg(p []float64, alpha float64) (adjusted []float64, reject []bool) {
 	m := len(p)
 	adjusted = make([]float64, m)
@@ -29,7 +31,7 @@ func BenjaminiHochberg(p []float64, alpha float64) (adjusted []float64, reject [
 		if math.IsNaN(p[i]) {
 			return 1
 		}
-		return p[i]
+		return math.Min(1, math.Max(0, p[i]))
 	}
 	sort.SliceStable(idx, func(a, b int) bool { return val(idx[a]) < val(idx[b]) })
 	run := 1.0
