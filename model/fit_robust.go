@@ -37,7 +37,7 @@ func medianInPlace(x []float64) float64 {
 
 // bracketMinN is the length from which medianInPlace brackets the median
 // from a sample before selecting.
-const bracketMinN = 1024
+const bracketMinN = 4096
 
 // bracketMedian returns the order statistics x_(k-1) and x_(k), k = n/2, of
 // x (n >= bracketMinN), reordering x, in about one pass (after Floyd and
@@ -50,12 +50,13 @@ const bracketMinN = 1024
 func bracketMedian(x []float64) (lo, hi float64, ok bool) {
 	n := len(x)
 	k := n / 2
-	var buf [1024]float64
-	m := min(len(buf), 4*int(math.Sqrt(float64(n))))
-	smp := buf[:m]
-	for i := range smp {
-		smp[i] = x[int(uint64(i)*uint64(n)/uint64(m))]
+	// The sample is swapped to the front of x (x stays a permutation).
+	m := min(1024, 4*int(math.Sqrt(float64(n))))
+	stride := n / m
+	for i := range m {
+		x[i], x[i*stride] = x[i*stride], x[i]
 	}
+	smp := x[:m]
 	// Sample ranks m/2 ± 3.5 standard deviations (sqrt(m)/2) and a margin.
 	d := int(1.75*math.Sqrt(float64(m))) + 4
 	ra, rb := max(m/2-d, 0), min(m/2+d, m-1)
