@@ -2,9 +2,11 @@ package influx
 
 import (
 	"bytes"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
+	"math/bits"
 	"strconv"
 	"time"
 	"unsafe"
@@ -65,10 +67,14 @@ type csvRows struct {
 	eof bool  // src returned io.EOF
 	err error // a read error other than io.EOF, returned once buf is drained
 
+	dayKey [11]byte // "YYYY-MM-DDT" of the last time parsed by hand
+	dayNs  int64    // its midnight in Unix ns; dayKey[0] == 0: none yet
 	line   int      // physical line number of the last record's first line (1-based)
 	lines  int      // physical lines consumed so far
 	cells  [][]byte // cells of the current record (into buf or scratch)
-	scr    []byte   // scratch for quoted records
+	scr    []byte   // a quoted record as read
+	out    []byte   // its unquoted cells
+	bounds [][2]int // cell bounds in out
 	tagCol string   // name of the tank column
 
 	// Current table.
@@ -162,20 +168,68 @@ func (c *csvRows) record() bool {
 		return false
 	}
 	c.line = c.lines
-	if bytes.IndexByte(line, '"') < 0 {
-		line = trimCR(line)
-		c.cells = c.cells[:0]
-		for {
-			i := bytes.IndexByte(line, ',')
-			if i < 0 {
-				c.cells = append(c.cells, line)
-				return true
-			}
-			c.cells = append(c.cells, line[:i])
-			line = line[i+1:]
-		}
+	if c.split(trimCR(line)) {
+		return true
 	}
 	return c.quotedRecord(line)
+}
+
+const (
+	lo7     = 0x7f7f7f7f7f7f7f7f
+	commas8 = 0x2c2c2c2c2c2c2c2c // ','
+	quotes8 = 0x2222222222222222 // '"'
+)
+
+// eqMask has the high bit of each byte of x that equals the byte of pat set,
+// and no other bit (exact, no borrow between bytes).
+func eqMask(x, pat uint64) uint64 {
+	y := x ^ pat
+	return ^(((y & lo7) + lo7) | y | lo7)
+}
+
+// split cuts a record without quotes at its commas into c.cells, eight bytes
+// at a time. It returns false, leaving the record to quotedRecord, when the
+// line holds a '"'.
+func (c *csvRows) split(line []byte) bool {
+	c.cells = c.cells[:0]
+	start, i := 0, 0
+	for ; i+8 <= len(line); i += 8 {
+		x := binary.LittleEndian.Uint64(line[i:])
+		if eqMask(x, quotes8) != 0 {
+			return false
+		}
+		for m := eqMask(x, commas8); m != 0; m &= m - 1 {
+			j := i + bits.TrailingZeros64(m)>>3
+			c.cells = append(c.cells, line[start:j])
+			start = j + 1
+		}
+	}
+	if rem := len(line) - i; rem > 0 && len(line) >= 8 {
+		// The last partial word: load the eight bytes that end the line
+		// and drop the ones already looked at.
+		x := binary.LittleEndian.Uint64(line[len(line)-8:]) >> (8 * (8 - rem))
+		keep := uint64(1)<<(8*rem) - 1 // the rem low bytes
+		if eqMask(x, quotes8)&keep != 0 {
+			return false
+		}
+		for m := eqMask(x, commas8) & keep; m != 0; m &= m - 1 {
+			j := i + bits.TrailingZeros64(m)>>3
+			c.cells = append(c.cells, line[start:j])
+			start = j + 1
+		}
+	} else {
+		for ; i < len(line); i++ {
+			switch line[i] {
+			case ',':
+				c.cells = append(c.cells, line[start:i])
+				start = i + 1
+			case '"':
+				return false
+			}
+		}
+	}
+	c.cells = append(c.cells, line[start:])
+	return true
 }
 
 func trimCR(b []byte) []byte {
@@ -186,10 +240,19 @@ func trimCR(b []byte) []byte {
 }
 
 // quotedRecord parses a record holding quotes, reading further physical
-// lines while a quoted cell is open. Cells are copied into c.scr.
+// lines while a quoted cell is open. The raw record is gathered in c.scr and
+// the unquoted cells written to c.out.
 func (c *csvRows) quotedRecord(first []byte) bool {
 	c.scr = append(c.scr[:0], first...)
-	for bytes.Count(c.scr, []byte{'"'})%2 == 1 {
+	for {
+		more, err := c.unquote(trimCR(c.scr))
+		if err != nil {
+			c.err = fmt.Errorf("line %d: %w", c.line, err)
+			return false
+		}
+		if !more {
+			return true
+		}
 		next, ok := c.physLine()
 		if !ok {
 			if c.err == nil {
@@ -205,57 +268,63 @@ func (c *csvRows) quotedRecord(first []byte) bool {
 		c.scr = append(trimCR(c.scr), '\n')
 		c.scr = append(c.scr, next...)
 	}
-	rec := trimCR(c.scr)
-	// Unquote in place: the output never runs ahead of the input.
+}
+
+// unquote splits rec per RFC 4180 into c.cells (backed by c.out). more
+// reports a quoted cell still open at the end of rec: the record goes on on
+// the next line.
+func (c *csvRows) unquote(rec []byte) (more bool, err error) {
 	c.cells = c.cells[:0]
-	out, in := 0, 0
+	if cap(c.out) < len(rec) {
+		c.out = make([]byte, 0, 2*len(rec))
+	}
+	out := c.out[:0]
+	bounds := c.bounds[:0]
+	in := 0
 	for {
-		start := out
+		start := len(out)
 		if in < len(rec) && rec[in] == '"' {
 			in++
 			for {
 				if in >= len(rec) {
-					c.err = fmt.Errorf("line %d: quoted cell not closed", c.line)
-					return false
+					return true, nil
 				}
 				ch := rec[in]
 				if ch == '"' {
 					if in+1 < len(rec) && rec[in+1] == '"' {
-						rec[out] = '"'
-						out++
+						out = append(out, '"')
 						in += 2
 						continue
 					}
 					in++
 					break
 				}
-				rec[out] = ch
-				out++
+				out = append(out, ch)
 				in++
 			}
 			if in < len(rec) && rec[in] != ',' {
-				c.err = fmt.Errorf("line %d: extraneous %q after a quoted cell", c.line, rec[in])
-				return false
+				return false, fmt.Errorf("extraneous %q after a quoted cell", rec[in])
 			}
 		} else {
 			for in < len(rec) && rec[in] != ',' {
 				if rec[in] == '"' {
-					c.err = fmt.Errorf("line %d: bare \" in an unquoted cell", c.line)
-					return false
+					return false, errors.New("bare \" in an unquoted cell")
 				}
-				rec[out] = rec[in]
-				out++
+				out = append(out, rec[in])
 				in++
 			}
 		}
-		c.cells = append(c.cells, rec[start:out])
+		bounds = append(bounds, [2]int{start, len(out)})
 		if in >= len(rec) {
-			return true
+			break
 		}
 		in++ // the comma
-		// The output slot of the comma is skipped so cells stay disjoint.
-		out++
 	}
+	c.out, c.bounds = out, bounds
+	for _, b := range bounds {
+		c.cells = append(c.cells, out[b[0]:b[1]:b[1]])
+	}
+	return false, nil
 }
 
 // readErr is the error that ended the input, nil at a clean end.
@@ -314,14 +383,17 @@ func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error)
 		if len(tank) == 0 || len(ts) == 0 || len(vs) == 0 {
 			continue
 		}
-		tNs, err = parseTimeNs(ts)
+		tNs, err = c.timeNs(ts)
 		if err != nil {
 			return nil, 0, 0, false, fmt.Errorf("line %d: _time %q: %w", c.line, ts, err)
 		}
 		s := unsafe.String(unsafe.SliceData(vs), len(vs)) // strconv keeps no reference (its errors clone the input)
 		switch c.kind {
 		case valueDouble:
-			v, err = strconv.ParseFloat(s, 64)
+			var fast bool
+			if v, fast = fastFloat(vs); !fast {
+				v, err = strconv.ParseFloat(s, 64)
+			}
 		case valueLong:
 			var x int64
 			x, err = strconv.ParseInt(s, 10, 64)
@@ -430,6 +502,26 @@ type inBandError struct{ msg string }
 
 func (e *inBandError) Error() string { return "query error in the result: " + e.msg }
 
+// timeNs is parseTimeNs with the date part of the previous time reused:
+// consecutive samples nearly always share it.
+func (c *csvRows) timeNs(b []byte) (int64, error) {
+	if len(b) >= 20 && c.dayKey[0] != 0 && string(b[:11]) == string(c.dayKey[:]) {
+		if ns, ok := clockNs(b); ok {
+			return c.dayNs + ns, nil
+		}
+	}
+	ns, err := parseTimeNs(b)
+	if err == nil && len(b) >= 20 {
+		if clk, ok := clockNs(b); ok {
+			if _, ok := fastTimeNs(b); ok {
+				copy(c.dayKey[:], b[:11])
+				c.dayNs = ns - clk
+			}
+		}
+	}
+	return ns, err
+}
+
 var errTimeSyntax = errors.New("not an RFC 3339 time")
 
 // parseTimeNs parses an RFC 3339 time to Unix nanoseconds. The form Flux
@@ -450,19 +542,11 @@ func parseTimeNs(b []byte) (int64, error) {
 // time.Parse (day within the month, hour < 24, minute and second < 60). It
 // returns ok false for any other form, leaving it to time.Parse.
 func fastTimeNs(b []byte) (int64, bool) {
-	if len(b) < 20 || b[4] != '-' || b[7] != '-' || b[10] != 'T' || b[13] != ':' || b[16] != ':' || b[len(b)-1] != 'Z' {
+	if len(b) < 20 || b[4] != '-' || b[7] != '-' || b[10] != 'T' {
 		return 0, false
 	}
-	d2 := func(i int) int {
-		x, y := b[i]-'0', b[i+1]-'0'
-		if x > 9 || y > 9 {
-			return -1
-		}
-		return int(x)*10 + int(y)
-	}
-	yh, yl := d2(0), d2(2)
-	mo, dd, hh, mi, ss := d2(5), d2(8), d2(11), d2(14), d2(17)
-	if yh < 0 || yl < 0 || mo < 1 || mo > 12 || dd < 1 || hh < 0 || hh > 23 || mi < 0 || mi > 59 || ss < 0 || ss > 59 {
+	yh, yl, mo, dd := digits2(b, 0), digits2(b, 2), digits2(b, 5), digits2(b, 8)
+	if yh < 0 || yl < 0 || mo < 1 || mo > 12 || dd < 1 {
 		return 0, false
 	}
 	y := yh*100 + yl
@@ -470,6 +554,31 @@ func fastTimeNs(b []byte) (int64, bool) {
 		return 0, false
 	}
 	if dd > daysIn(mo, y) {
+		return 0, false
+	}
+	clk, ok := clockNs(b)
+	if !ok {
+		return 0, false
+	}
+	return daysFromCivil(y, mo, dd)*86400e9 + clk, true
+}
+
+func digits2(b []byte, i int) int {
+	x, y := b[i]-'0', b[i+1]-'0'
+	if x > 9 || y > 9 {
+		return -1
+	}
+	return int(x)*10 + int(y)
+}
+
+// clockNs parses the "HH:MM:SS[.f{1,9}]Z" that follows the date of a time
+// of at least 20 bytes, to nanoseconds since midnight.
+func clockNs(b []byte) (int64, bool) {
+	if b[13] != ':' || b[16] != ':' || b[len(b)-1] != 'Z' {
+		return 0, false
+	}
+	hh, mi, ss := digits2(b, 11), digits2(b, 14), digits2(b, 17)
+	if hh < 0 || hh > 23 || mi < 0 || mi > 59 || ss < 0 || ss > 59 {
 		return 0, false
 	}
 	var frac int64
@@ -489,9 +598,7 @@ func fastTimeNs(b []byte) (int64, bool) {
 	default:
 		return 0, false
 	}
-	days := daysFromCivil(y, mo, dd)
-	secs := days*86400 + int64(hh)*3600 + int64(mi)*60 + int64(ss)
-	return secs*1e9 + frac, true
+	return (int64(hh)*3600+int64(mi)*60+int64(ss))*1e9 + frac, true
 }
 
 func daysIn(m, y int) int {
@@ -519,4 +626,52 @@ func daysFromCivil(y, m, d int) int64 {
 	doy := (153*mp+2)/5 + d - 1
 	doe := yoe*365 + yoe/4 - yoe/100 + doy
 	return int64(era)*146097 + int64(doe) - 719468
+}
+
+// pow10 are the powers of ten that float64 holds exactly.
+var pow10 = [...]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10,
+	1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22}
+
+// fastFloat parses [-]d+[.d+] when its digits, read as an integer m, are at
+// most 2^53 and at most 22 of them follow the point: m and the divisor 10^k
+// are then both exact float64 values, so m / 10^k is the correctly rounded
+// quotient, the value strconv.ParseFloat returns (the classic exact fast path
+// of decimal conversion). Any other form returns ok false.
+func fastFloat(b []byte) (float64, bool) {
+	i := 0
+	neg := false
+	if len(b) > 0 && b[0] == '-' {
+		neg, i = true, 1
+	}
+	var m uint64
+	nd, k := 0, 0 // digits, digits after the point
+	dot := false
+	start := i
+	for ; i < len(b); i++ {
+		ch := b[i]
+		if ch == '.' {
+			if dot {
+				return 0, false
+			}
+			dot = true
+			continue
+		}
+		d := ch - '0'
+		if d > 9 {
+			return 0, false
+		}
+		m = m*10 + uint64(d)
+		nd++
+		if dot {
+			k++
+		}
+	}
+	if nd == 0 || nd > 19 || m > 1<<53 || k > 22 || (dot && (b[start] == '.' || b[len(b)-1] == '.')) {
+		return 0, false
+	}
+	f := float64(m) / pow10[k]
+	if neg {
+		f = -f
+	}
+	return f, true
 }
