@@ -60,7 +60,7 @@
 // (capped at 48 a day), so the limits are never looser than the tank's true
 // frequency calls for. ARL0 values are rounded to two significant digits
 // before the limits are solved (at most 5 % off the stated rate). The sensor
-// tests below have their own, separately stated, rates.
+// tests below have their own, separately stated, budget.
 //
 // Classification. A K fall (lower CUSUM or EWMA) is a restriction. Its shape
 // is decided on ln K of every drain since the reference (baseline drains
@@ -91,20 +91,53 @@
 //
 // Sensor checks (per evaluation; while any is active, outlet and leak
 // findings are withheld, so a sensor fault is never reported as a
-// restriction):
+// restriction).
+//
+// Sensor budget. The three sensor tests with a probability model (stuck,
+// noise, spikes) share one false sensor finding per FalseAlarmYears per
+// tank, split in thirds over the evaluations: with one evaluation per
+// EvalInterval (default 15 min, 35 064 a year) each test runs at
+//
+//	α = EvalInterval / (3 × FalseAlarmYears × 1 year) = 9.5e-7
+//
+// per evaluation at the defaults (SensorAlpha overrides it). The union bound
+// over evaluations gives at most 1/FalseAlarmYears = 0.1 false sensor
+// findings per tank-year; a healthy tank's statistics change slowly, so
+// consecutive evaluations are strongly dependent and the number of distinct
+// false episodes is lower still. The feed rules (stale, gap, drift) are
+// rules on the data with no probability model and are not in the budget:
 //
 //   - stale: no sample for StaleAfter (6 h); gap: gaps longer than GapLimit
-//     (15 min) cover more than GapShare (10 %) of the last GapWindow (24 h);
-//     stuck: bit-identical readings for StuckAfter (12 h), or an idle period
-//     of at least 20 samples with zero noise and a flat run over 90 % of it.
-//     These are rules on the feed, with no false-alarm probability.
+//     (15 min) cover more than GapShare (10 %) of the last GapWindow (24 h).
+//   - stuck: derived from the sensor's own noise and resolution. σ is the
+//     median noise of the first 8 idle periods since the sensor epoch (drain
+//     fit noise when idle periods are missing), q the smallest non-zero step
+//     between consecutive readings (0 for a continuous reading). A healthy
+//     reading repeats with chance at most p = 2Φ(q/(2σ)) - 1, so a run of k
+//     identical readings has chance at most p^(k-1); the rule flags
+//     k = max(30, 1 + ceil(ln α / ln p)) identical readings lasting at least
+//     StuckMin (30 min). For a continuous reading (p = 0) it is 30 samples to
+//     the last bit. A sensor whose noise is below its resolution (σ < q)
+//     legitimately repeats and is never called stuck. Until a noise
+//     estimate exists the fixed rule StuckAfter (12 h) applies. The finding
+//     stands while the current run is flat; a run that met the rule and has
+//     ended is reported, with its start as onset and its end in the evidence,
+//     for 24 h after it ended (fits made during it are suspect), then clears.
+//     Without raw series the rule is applied to the latest idle period's
+//     flat run when its noise is zero.
 //   - noise: median noise of the last 5 idle periods (or drain fits) at least
-//     NoiseFactor (2) × the baseline median and an F test p < SensorAlpha
-//     (1e-4; idle noise is MAD-based, so 37 % of its samples count as degrees
-//     of freedom). spikes: the spike rate of the last 5 segments at least
-//     SpikeFactor (3) × baseline and a Poisson p < 1e-4. With one evaluation a
-//     day the two tests give at most 2 × 365 × 1e-4 ≈ 0.07 false findings per
-//     tank-year (Bonferroni bound).
+//     NoiseFactor (2) × the baseline median and an F test p < α (idle noise
+//     is MAD-based, so 37 % of its samples count as degrees of freedom).
+//   - spikes: the spike rate of the last 5 segments at least SpikeFactor (3)
+//     × the baseline rate and a Poisson p < α, the baseline rate estimated
+//     from the first 8 segments since the sensor epoch ((spikes + 0.5) /
+//     samples). Spikes present since commissioning (or since the last
+//     sensor-calibrated reset) are part of the baseline, so they are the
+//     sensor's normal character and raise no finding; only a rise of the
+//     rate against it does. The baseline rate is itself estimated, so the
+//     real per-evaluation level is somewhat above α when the baseline holds
+//     few spikes; the factor 3 keeps such a noisy baseline from signalling
+//     on its own.
 //   - drift: the median empty-tank reading of the last 5 complete drains
 //     moved more than DriftM (0.01 m) from the baseline, with all five on the
 //     same side; or the level rose (rate > 3 SE) in at least 4 of the last 5
@@ -116,6 +149,10 @@
 // (p = 1 - exp(-n/ARL0(current value)), the chance that a healthy chart
 // reaches the current value within the n drains monitored) and finding
 // p-values, and marks the watch list by Benjamini-Hochberg at alpha (0.05).
+// Every p-value lies in [0, 1]: chart values far beyond the limits have
+// ARL0s beyond what the Nyström solve can resolve in double precision (about
+// 1e12), and there CUSUMARL continues on Siegmund's exponential growth and
+// EWMAARL on the stationary Gaussian tail (see each).
 //
 // # Detection study
 //

@@ -448,13 +448,8 @@ func (s *State) sensorFindings(now time.Time, opt Options) []Finding {
 			f.Onset = nsTime(ss.LastSampleNs)
 			out = append(out, f)
 		}
-		if flat := time.Duration(ss.LastSampleNs - ss.FlatSinceNs); flat >= opt.StuckAfter {
-			f := mk(SubStuck, "flat_h", flat.Hours(), opt.StuckAfter.Hours(), math.NaN(),
-				fmt.Sprintf("the level reading has not changed by a single bit for %.1f h (limit %.1f h)", flat.Hours(), opt.StuckAfter.Hours()))
-			f.Onset = nsTime(ss.FlatSinceNs)
-			out = append(out, f)
-		}
 	}
+	out = append(out, s.stuckFindings(now, opt)...)
 	win := int64(opt.GapWindow)
 	var lost int64
 	for _, g := range ss.Gaps {
@@ -504,12 +499,15 @@ func (s *State) recordFindings(now time.Time, opt Options) []Finding {
 			what = "idle periods"
 			eff = 0.37 // MAD-based scatter: about 37 % of the degrees of freedom
 		}
-		// Stuck: zero noise with a flat run over most of the latest idle period.
-		if idle {
+		// Stuck, from the segment records when no raw series is fed: the
+		// latest idle period is one flat run of zero noise over at least 90 %
+		// of it, as long as the stuck rule's run (stuckRule).
+		if idle && s.Sensor.LastSampleNs == 0 {
 			last := rec[len(rec)-1]
-			if last.N >= 20 && last.NoiseM == 0 && float64(last.FlatRun) >= 0.9*float64(last.N) && medianNoise(base) > 0 {
-				out = append(out, mk(SubStuck, "flat_run", float64(last.FlatRun), 0.9*float64(last.N), math.NaN(),
-					fmt.Sprintf("latest idle period: %d of %d readings identical and zero noise (baseline noise %.2g m)", last.FlatRun, last.N, medianNoise(base))))
+			lim := s.stuckRule(opt)
+			if lim.known && !lim.never && last.NoiseM == 0 && last.FlatRun >= lim.samples && float64(last.FlatRun) >= 0.9*float64(last.N) {
+				out = append(out, mk(SubStuck, "flat_run", float64(last.FlatRun), float64(lim.samples), math.Pow(lim.pSame, float64(last.FlatRun-1)),
+					fmt.Sprintf("latest idle period: %d of %d readings identical and zero noise (healthy noise %.2g m, limit %d readings)", last.FlatRun, last.N, lim.sigmaM, lim.samples)))
 			}
 		}
 		// Noise: F test on the variances, with a practical factor.

@@ -1,6 +1,7 @@
 package detect
 
 import (
+	"math"
 	"time"
 
 	"drainsight/model"
@@ -60,8 +61,13 @@ type Options struct {
 	GapWindow time.Duration
 	GapShare  float64
 	// StuckAfter: bit-identical readings for this long mean a stuck
-	// sensor. Default 12 h.
+	// sensor while no noise estimate exists yet (no segment records); once
+	// one does, the stuck rule derives from the sensor's noise and quantum
+	// (see stuckRule). Default 12 h.
 	StuckAfter time.Duration
+	// StuckMin is the shortest flat run reported as stuck under the derived
+	// rule, whatever the sample count. Default 30 min.
+	StuckMin time.Duration
 	// NoiseFactor is the rise in level noise (idle NoiseM or fit SigmaM,
 	// recent median over baseline median) that counts as a noisy sensor.
 	// Default 2.
@@ -71,8 +77,15 @@ type Options struct {
 	// DriftM is the shift of the empty-tank reading (EmptyHeadM on complete
 	// drains) that counts as sensor drift, m. Default 0.01.
 	DriftM float64
-	// SensorAlpha is the per-evaluation significance level of the noise and
-	// spike tests. Default 1e-4.
+	// EvalInterval is the time between evaluations of a tank (the scan
+	// period); with FalseAlarmYears it sets the default SensorAlpha.
+	// Default 15 min.
+	EvalInterval time.Duration
+	// SensorAlpha is the per-evaluation significance level of each of the
+	// three sensor tests with a probability model (stuck, noise, spikes).
+	// Default: one false sensor finding per FalseAlarmYears per tank, split
+	// in thirds over the evaluations, α = EvalInterval / (3 ×
+	// FalseAlarmYears × 1 year) (9.5e-7 at 15 min and 10 years).
 	SensorAlpha float64
 }
 
@@ -134,8 +147,14 @@ func (o Options) withDefaults() Options {
 	if o.DriftM <= 0 {
 		o.DriftM = 0.01
 	}
+	if o.StuckMin <= 0 {
+		o.StuckMin = stuckMinDuration
+	}
+	if o.EvalInterval <= 0 {
+		o.EvalInterval = 15 * time.Minute
+	}
 	if o.SensorAlpha <= 0 || o.SensorAlpha >= 1 {
-		o.SensorAlpha = 1e-4
+		o.SensorAlpha = sensorAlpha(o.FalseAlarmYears, o.EvalInterval)
 	}
 	return o
 }
@@ -151,4 +170,15 @@ func qualityRank(q model.Quality) int {
 		return 1
 	}
 	return 0
+}
+
+// year is the Julian year used for rates.
+const year = 365.25 * 24 * time.Hour
+
+// sensorAlpha is the default per-evaluation level of each sensor test: the
+// sensor budget of one false finding per falseAlarmYears split in thirds
+// over the evaluations of those years (a union bound).
+func sensorAlpha(falseAlarmYears float64, every time.Duration) float64 {
+	evals := falseAlarmYears * float64(year) / float64(every)
+	return math.Min(0.5, 1/(3*evals))
 }

@@ -107,12 +107,19 @@ type IdlePoint struct {
 	RateSEMs  float64 `json:"rate_se_ms"`
 }
 
-// SensorState holds what the sensor checks need.
+// SensorState holds what the sensor checks need. FlatSinceNs is the first
+// sample of the current run of bit-identical readings and FlatRunN its
+// sample count; QuantumM is the smallest non-zero step (above 1 nm) seen
+// between consecutive readings, the resolution estimate (0 until one is
+// seen); StuckRuns are finished runs that met the stuck rule.
 type SensorState struct {
 	EpochNs      int64       `json:"epoch_ns"`
 	LastSampleNs int64       `json:"last_sample_ns"`
 	LastHeadM    float64     `json:"last_head_m"`
 	FlatSinceNs  int64       `json:"flat_since_ns"`
+	FlatRunN     int         `json:"flat_run_n"`
+	QuantumM     float64     `json:"quantum_m"`
+	StuckRuns    []StuckRun  `json:"stuck_runs,omitempty"`
 	Gaps         []Gap       `json:"gaps"`
 	Recs         []SensorRec `json:"recs"`
 }
@@ -378,12 +385,15 @@ func (s *State) AddIdle(f model.IdleFit, _ Options) {
 const leakK = 0.5
 
 // AddSeries scans new raw samples of the tank's level for the feed checks:
-// the time of the newest sample (stale), gaps longer than opt.GapLimit, and
-// the current run of bit-identical readings (stuck). Samples at or before the
-// last one seen are skipped, so overlapping windows are harmless.
+// the time of the newest sample (stale), gaps longer than opt.GapLimit, the
+// reading quantum, and the current run of bit-identical readings (stuck);
+// a run that ends after meeting the stuck rule (see stuckRule, evaluated
+// with the records known at this call) is kept in StuckRuns. Samples at or
+// before the last one seen are skipped, so overlapping windows are harmless.
 func (s *State) AddSeries(ser *model.Series, opt Options) {
 	opt = opt.withDefaults()
 	ss := &s.Sensor
+	lim := s.stuckRule(opt)
 	for i, t := range ser.TimeNs {
 		if t <= ss.LastSampleNs {
 			continue
@@ -394,11 +404,18 @@ func (s *State) AddSeries(ser *model.Series, opt Options) {
 				ss.Gaps = appendCapped(ss.Gaps, Gap{StartNs: ss.LastSampleNs, EndNs: t}, maxGaps)
 			}
 			if h != ss.LastHeadM {
-				ss.FlatSinceNs = t
+				if lim.stuckNow(ss.FlatRunN, time.Duration(ss.LastSampleNs-ss.FlatSinceNs), opt) {
+					ss.StuckRuns = appendCapped(ss.StuckRuns, StuckRun{StartNs: ss.FlatSinceNs, EndNs: ss.LastSampleNs, N: ss.FlatRunN}, maxStuckRuns)
+				}
+				if d := math.Abs(h - ss.LastHeadM); d > quantumFloorM && (ss.QuantumM == 0 || d < ss.QuantumM) {
+					ss.QuantumM = d
+				}
+				ss.FlatSinceNs, ss.FlatRunN = t, 0
 			}
 		} else {
-			ss.FlatSinceNs = t
+			ss.FlatSinceNs, ss.FlatRunN = t, 0
 		}
+		ss.FlatRunN++
 		ss.LastSampleNs, ss.LastHeadM = t, h
 	}
 }
@@ -429,6 +446,7 @@ func (s *State) Reset(at time.Time, action string) error {
 		s.Sensor.EpochNs = ns
 		s.Sensor.Recs = nil
 		s.Sensor.Gaps = nil
+		s.Sensor.StuckRuns = nil
 		s.Sensor.FlatSinceNs = max(s.Sensor.FlatSinceNs, ns)
 	default:
 		return fmt.Errorf("detect: tank %s: unknown maintenance action %q (want cleaned, repaired, replaced or sensor-calibrated)", s.Tank, action)
