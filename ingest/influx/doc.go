@@ -1,8 +1,11 @@
 // Package influx reads tank level histories from InfluxDB and writes fits and
-// findings back. It speaks the /api/v2 endpoints through
-// github.com/influxdata/influxdb-client-go/v2, which serve both InfluxDB 2.x
-// (API token, org, bucket) and 1.8 with Flux enabled (token "user:password"
-// or "" without auth, bucket "db/rp" or "db", org ignored).
+// findings back. It speaks the /api/v2 endpoints, which serve both InfluxDB
+// 2.x (API token, org, bucket) and 1.8 with Flux enabled (token
+// "user:password" or "" without auth, bucket "db/rp" or "db", org ignored).
+// Requests go through github.com/influxdata/influxdb-client-go/v2 (its HTTP
+// service for queries, its blocking write API for writes), so headers, auth
+// and HTTP error decoding are the library's; query results are parsed by this
+// package's own streaming reader (see below).
 //
 // # Reading
 //
@@ -10,7 +13,15 @@
 // bounded time window: the caller splits the history with [Windows] and calls
 // [Source.Pull] for each window in turn, committing its checkpoint after each.
 // Pull streams the annotated CSV response and hands every sample to a
-// callback; samples stamped exactly at the window's stop are dropped, because
+// callback. The response is read by a reader of its own rather than the
+// library's QueryTableResult, which builds a map per row and was 35-70 times
+// slower than the download: it splits records eight bytes at a time, converts
+// only the time, value and tank cells (located by name in each table's
+// header), parses the "2006-01-02T15:04:05.999999999Z" times Flux writes and
+// short decimals by hand (falling back to time.Parse and strconv), and
+// allocates nothing per row. In-band error tables come back as errors.
+// Query results are requested uncompressed unless Options.QueryGzip is set.
+// Samples stamped exactly at the window's stop are dropped, because
 // range() includes its stop on 1.8 and excludes it on 2.x, so consecutive
 // windows [a, b), [b, c) neither lose nor double a point on either server.
 //

@@ -1,7 +1,9 @@
 package influx
 
 import (
+	"compress/gzip"
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -328,6 +330,53 @@ func TestConnRedacts(t *testing.T) {
 	for _, bad := range []Conn{{URL: "db:8086", Bucket: "b"}, {URL: "http://h:1"}, {URL: "ftp://h", Bucket: "b"}} {
 		if err := bad.Validate(); err == nil {
 			t.Errorf("Validate(%v): got nil error", bad)
+		}
+	}
+}
+
+// TestPullRequestAndGzip checks the request (the endpoint, headers and JSON
+// body the client library sends for a query) and that a gzipped answer is
+// read when Options.QueryGzip asks for it.
+func TestPullRequestAndGzip(t *testing.T) {
+	body := csvTable(0, "double", "T1", [][2]string{{"2024-03-01T00:00:00Z", "1.5"}})
+	for _, gz := range []bool{false, true} {
+		var gotReq struct {
+			path, query, ctype, accept, auth string
+			body                             map[string]any
+		}
+		srv := httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+			gotReq.path, gotReq.query = r.URL.Path, r.URL.RawQuery
+			gotReq.ctype, gotReq.accept, gotReq.auth = r.Header.Get("Content-Type"), r.Header.Get("Accept-Encoding"), r.Header.Get("Authorization")
+			json.NewDecoder(r.Body).Decode(&gotReq.body)
+			w.Header().Set("Content-Type", "text/csv; charset=utf-8")
+			if r.Header.Get("Accept-Encoding") == "gzip" {
+				w.Header().Set("Content-Encoding", "gzip")
+				zw := gzip.NewWriter(w)
+				io.WriteString(zw, body)
+				zw.Close()
+				return
+			}
+			io.WriteString(w, body)
+		}))
+		c, err := New(Conn{URL: srv.URL, Org: "acme", Bucket: "tanks/autogen", Token: "tok"}, Options{QueryGzip: gz})
+		if err != nil {
+			t.Fatal(err)
+		}
+		out, n, err := pullOnce(t, c, t0, t1)
+		c.Close()
+		srv.Close()
+		if err != nil || n != 1 || !reflect.DeepEqual(out, []got{{"T1", t0, 1.5}}) {
+			t.Errorf("gzip %v: got %v, %d, %v; want one sample", gz, out, n, err)
+		}
+		wantAccept := map[bool]string{false: "identity", true: "gzip"}[gz]
+		if gotReq.path != "/api/v2/query" || gotReq.query != "org=acme" || gotReq.ctype != "application/json" ||
+			gotReq.accept != wantAccept || gotReq.auth != "Token tok" {
+			t.Errorf("gzip %v: request %+v", gz, gotReq)
+		}
+		d, _ := json.Marshal(gotReq.body["dialect"])
+		if want := `{"annotations":["datatype","group","default"],"delimiter":",","header":true}`; string(d) != want || gotReq.body["type"] != "flux" ||
+			!strings.HasPrefix(fmt.Sprint(gotReq.body["query"]), `from(bucket: "tanks/autogen")`) {
+			t.Errorf("gzip %v: body %v; want dialect %s, type flux and the query", gz, gotReq.body, want)
 		}
 	}
 }
