@@ -157,6 +157,12 @@
 // # Detection study
 //
 // Study simulates histories of many tanks and reports detection rate, delay,
-// classification and false findings; FormatStudyTable renders it. Run the
-// full study with go test ./detect -run StudySmall -v -args -study.
+// classification and false findings; FormatStudyTable renders it.
+// StudySensor does the same for sensor faults (drift 2-10 mm/day, stuck
+// 2-12 h, noise ×2-×5) fed as drain fits, idle fits and raw samples, and
+// reports detection, delay and the share never reported as an outlet fault
+// (100 % in every cell at 200 tanks: drift found in a median 152, 80 and 58 h,
+// stuck in 0.7 h, noise in 30-33 h); FormatSensorStudyTable renders it. Run
+// the full studies with go test ./detect -run 'StudySmall|StudySensor' -v
+// -args -study.
 package detect

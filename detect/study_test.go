@@ -33,3 +33,17 @@ func BenchmarkStudyCell(b *testing.B) {
 		Study(opt)
 	}
 }
+
+func TestStudySensor(t *testing.T) {
+	opt := StudyOptions{Tanks: 20}
+	if *fullStudy {
+		opt = StudyOptions{}
+	}
+	rows := StudySensor(opt)
+	t.Log("\n" + FormatSensorStudyTable(rows))
+	for _, r := range rows {
+		if r.NotOutletPct != 100 {
+			t.Errorf("%s %g %s: %.1f %% of tanks never reported as an outlet fault, want 100 %%", r.Fault, r.Size, r.Unit, r.NotOutletPct)
+		}
+	}
+}
