@@ -76,24 +76,3 @@ func TestExtremesWindow(t *testing.T) {
 		}
 	}
 }
-
-func TestMedianNear(t *testing.T) {
-	rng := rand.New(rand.NewPCG(13, 14))
-	for n := 1; n < 80; n++ {
-		for range 50 {
-			x := make([]float64, n)
-			for i := range x {
-				x[i] = float64(rng.IntN(6)) * 0.001
-			}
-			g := float64(rng.IntN(6)) * 0.001
-			y := slices.Clone(x)
-			want := median(y)
-			if got := medianNear(x, g); got != want {
-				t.Fatalf("n=%d g=%g: got %g, want %g", n, g, got, want)
-			}
-		}
-	}
-	if got := medianNear(nil, 1); !math.IsNaN(got) {
-		t.Errorf("empty: got %g, want NaN", got)
-	}
-}

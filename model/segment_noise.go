@@ -25,7 +25,6 @@ type noiseEstimator struct {
 	d2      []float64
 	ests    [noiseBlocks]float64
 	sorted  []float64 // ests[:ne] in ascending order
-	lastMed float64   // median |d2| of the last finished block (0 before any)
 	ne      int
 	epos    int
 	next    int // size of the block at which a provisional estimate is made
@@ -78,9 +77,7 @@ func (e *noiseEstimator) finish() bool {
 	if len(e.d2) < 5 {
 		return false
 	}
-	m := medianNear(e.d2, e.lastMed)
-	e.lastMed = m
-	b := 1.4826 * m / math.Sqrt(6)
+	b := 1.4826 * median(e.d2) / math.Sqrt(6)
 	if e.ne == noiseBlocks {
 		// the oldest block leaves the sorted copy
 		i, _ := slices.BinarySearch(e.sorted, e.ests[e.epos])
@@ -100,38 +97,6 @@ func (e *noiseEstimator) finish() bool {
 		e.sigma = 0.5 * (e.sorted[k-1] + e.sorted[k])
 	}
 	return true
-}
-
-// medianNear returns median(x), trying the guess g first: with readings
-// quantised to a resolution step the median |d2| of one block is often
-// exactly that of the last, and one branch-free counting pass then settles
-// it; otherwise it selects as median does.
-func medianNear(x []float64, g float64) float64 {
-	n := len(x)
-	if n == 0 {
-		return math.NaN()
-	}
-	below, eq := 0, 0
-	for _, v := range x {
-		lt, et := 0, 0
-		if v < g {
-			lt = 1
-		}
-		if v == g {
-			et = 1
-		}
-		below += lt
-		eq += et
-	}
-	k := n / 2
-	if n%2 == 1 {
-		if below <= k && k < below+eq {
-			return g
-		}
-	} else if below <= k-1 && k < below+eq {
-		return 0.5 * (g + g) // as median computes it from two equal order statistics
-	}
-	return median(x)
 }
 
 // median returns the median of x, reordering x. NaN for an empty slice.

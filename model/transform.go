@@ -341,9 +341,11 @@ func (ht *HeadTransform) Inv(f float64) float64 {
 	return h
 }
 
-// inv inverts F starting the interval search at hint (or by bisection when
-// hint < 0) and returns the interval used, so that a monotone sweep costs
-// O(1) per point.
+// inv inverts F starting the interval search at hint (or, when hint < 0, at
+// the interval that the bucket index fIdx gives for f) and returns the
+// interval used, so that a monotone sweep costs O(1) per point and a lone
+// call a few steps. The interval is the last one whose start node is <= f,
+// as a bisection of the nodes would find.
 func (ht *HeadTransform) inv(f float64, hint int) (float64, int) {
 	if !(f > 0) {
 		return 0, 0
