@@ -37,24 +37,34 @@ func statuses(evs []Event) string {
 func TestTrackerLifecycle(t *testing.T) {
 	restr := finding("T1", "restriction", "gradual", -22)
 	leak := finding("T2", "tank_leak", "", 0)
+	both := []string{"T1", "T2"}
 	steps := []struct {
 		name      string
 		evaluated []string
 		findings  []detect.Finding
+		reset     string
 		want      string
 		notify    int
 	}{
-		{"first sight is new", []string{"T1", "T2"}, []detect.Finding{restr}, "T1|restriction|gradual=new", 1},
-		{"same data again is not re-notified", []string{"T1", "T2"}, []detect.Finding{restr}, "T1|restriction|gradual=ongoing", 0},
-		{"a second tank joins", []string{"T1", "T2"}, []detect.Finding{restr, leak}, "T1|restriction|gradual=ongoing T2|tank_leak|=new", 1},
-		{"tank not evaluated keeps its finding", []string{"T1"}, []detect.Finding{restr}, "T1|restriction|gradual=ongoing", 0},
-		{"cleared when absent", []string{"T1", "T2"}, []detect.Finding{restr}, "T1|restriction|gradual=ongoing T2|tank_leak|=cleared", 1},
-		{"cleared record dropped, comes back new", []string{"T1", "T2"}, []detect.Finding{restr, leak}, "T1|restriction|gradual=ongoing T2|tank_leak|=new", 1},
+		{"first sight is new", both, []detect.Finding{restr}, "", "T1|restriction=new", 1},
+		{"same data again is not re-notified", both, []detect.Finding{restr}, "", "T1|restriction=ongoing", 0},
+		{"a second tank joins", both, []detect.Finding{restr, leak}, "", "T1|restriction=ongoing T2|tank_leak=new", 1},
+		{"tank not evaluated keeps its finding", []string{"T1"}, []detect.Finding{restr}, "", "T1|restriction=ongoing", 0},
+		{"absent once: held", both, []detect.Finding{restr}, "", "T1|restriction=ongoing T2|tank_leak=ongoing", 0},
+		{"back before clearing: still ongoing, not new", both, []detect.Finding{restr, leak}, "", "T1|restriction=ongoing T2|tank_leak=ongoing", 0},
+		{"absent 1", both, []detect.Finding{restr}, "", "T1|restriction=ongoing T2|tank_leak=ongoing", 0},
+		{"absent 2", both, []detect.Finding{restr}, "", "T1|restriction=ongoing T2|tank_leak=ongoing", 0},
+		{"absent 3: cleared", both, []detect.Finding{restr}, "", "T1|restriction=ongoing T2|tank_leak=cleared", 1},
+		{"cleared record dropped, comes back new", both, []detect.Finding{restr, leak}, "", "T1|restriction=ongoing T2|tank_leak=new", 1},
+		{"maintenance clears at once", both, []detect.Finding{leak}, "T1", "T1|restriction=cleared T2|tank_leak=ongoing", 1},
 	}
 	tr := NewTracker(nil)
 	for i, st := range steps {
 		// Persist and restore between steps, as the run loop does.
 		tr = NewTracker(tr.Records())
+		if st.reset != "" {
+			tr.ResetTank(st.reset)
+		}
 		evs := tr.Update(t0.Add(time.Duration(i)*time.Hour), st.evaluated, st.findings)
 		if got := statuses(evs); got != st.want {
 			t.Errorf("%s: got %q, want %q", st.name, got, st.want)
@@ -62,6 +72,20 @@ func TestTrackerLifecycle(t *testing.T) {
 		if got := len(Notifiable(evs)); got != st.notify {
 			t.Errorf("%s: %d notifiable, want %d", st.name, got, st.notify)
 		}
+	}
+}
+
+func TestTrackerSubtypeRefinedIsNotNew(t *testing.T) {
+	tr := NewTracker(nil)
+	tr.Update(t0, []string{"T1"}, []detect.Finding{finding("T1", "restriction", "abrupt", -3)})
+	evs := tr.Update(t0.Add(time.Hour), []string{"T1"}, []detect.Finding{finding("T1", "restriction", "gradual", -5)})
+	if len(evs) != 1 || evs[0].Status != StatusOngoing || evs[0].Finding.Subtype != "gradual" {
+		t.Errorf("refined subtype gave %+v, want one ongoing gradual restriction", evs)
+	}
+	evs = tr.Update(t0.Add(2*time.Hour), []string{"T1"}, []detect.Finding{
+		finding("T1", "restriction", "gradual", -5), finding("T1", "sensor_fault", "drift", 0), finding("T1", "sensor_fault", "stuck", 0)})
+	if got := len(Notifiable(evs)); got != 2 {
+		t.Errorf("two sensor subtypes gave %d new events, want 2", got)
 	}
 }
 
@@ -77,7 +101,7 @@ func TestTrackerRecordsRoundTripJSON(t *testing.T) {
 		t.Fatal(err)
 	}
 	evs := NewTracker(back).Update(t0.Add(time.Hour), []string{"T1"}, []detect.Finding{finding("T1", "restriction", "abrupt", -35)})
-	if got, want := statuses(evs), "T1|restriction|abrupt=ongoing"; got != want {
+	if got, want := statuses(evs), "T1|restriction=ongoing"; got != want {
 		t.Errorf("after JSON round trip: got %q, want %q", got, want)
 	}
 }

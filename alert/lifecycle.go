@@ -27,6 +27,8 @@ type Record struct {
 	FirstSeen time.Time      `json:"first_seen"`
 	LastSeen  time.Time      `json:"last_seen"`
 	ClearedAt time.Time      `json:"cleared_at,omitzero"`
+	// Missed counts the consecutive evaluations of its tank without it.
+	Missed int `json:"missed,omitempty"`
 	Finding   detect.Finding `json:"finding"`
 }
 
@@ -38,18 +40,36 @@ type Event struct {
 	Finding detect.Finding
 }
 
-// Key identifies a finding across runs: one per tank, kind and subtype.
-func Key(f detect.Finding) string { return f.Tank + "|" + f.Kind + "|" + f.Subtype }
+// Key identifies a finding across runs. Outlet findings are one per tank
+// and kind: a restriction first called abrupt and later gradual is the same
+// finding with a refined subtype, not a new alert. Sensor faults are one per
+// subtype: a stuck reading and a drift are different problems.
+func Key(f detect.Finding) string {
+	if f.Kind == "sensor_fault" {
+		return f.Tank + "|" + f.Kind + "|" + f.Subtype
+	}
+	return f.Tank + "|" + f.Kind
+}
+
+// DefaultClearAfter is the number of consecutive evaluations a finding must
+// be absent from before it is cleared: a statistic hovering at its limit
+// would otherwise page on-call staff on every crossing.
+const DefaultClearAfter = 3
 
 // Tracker holds the lifecycle of every finding. It is not safe for
 // concurrent use; the run loop owns one and persists its Records.
 type Tracker struct {
-	recs map[string]*Record
+	// ClearAfter is the number of consecutive evaluations without a finding
+	// before it is cleared; 0 means DefaultClearAfter. Until then it stays
+	// ongoing with its last evidence.
+	ClearAfter int
+	recs       map[string]*Record
+	reset      map[string]bool
 }
 
 // NewTracker restores a tracker from persisted records.
 func NewTracker(prev []Record) *Tracker {
-	t := &Tracker{recs: make(map[string]*Record, len(prev))}
+	t := &Tracker{recs: make(map[string]*Record, len(prev)), reset: map[string]bool{}}
 	for _, r := range prev {
 		r := r
 		t.recs[r.Key] = &r
@@ -57,12 +77,18 @@ func NewTracker(prev []Record) *Tracker {
 	return t
 }
 
+// ResetTank clears the tank's findings that are absent from its next
+// evaluation at once, without waiting ClearAfter evaluations: maintenance
+// restarted its baseline.
+func (t *Tracker) ResetTank(tank string) { t.reset[tank] = true }
+
 // Update applies one evaluation at now. evaluated lists the tanks whose
 // findings were evaluated (a tank that failed to load keeps its findings
 // untouched); findings are the active findings of those tanks. It returns the
 // events of this evaluation sorted by tank, kind and subtype: new and cleared
-// transitions and ongoing findings. Cleared records are dropped on the next
-// Update, so a finding that comes back is new again.
+// transitions and ongoing findings (including those absent for fewer than
+// ClearAfter evaluations). Cleared records are dropped on the next Update, so
+// a finding that comes back is new again.
 func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Finding) []Event {
 	inScope := make(map[string]bool, len(evaluated))
 	for _, tank := range evaluated {
@@ -83,8 +109,12 @@ func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Fi
 		} else {
 			r.Status = StatusOngoing
 		}
-		r.LastSeen, r.Finding = now, f
+		r.LastSeen, r.Finding, r.Missed = now, f, 0
 		evs = append(evs, Event{Status: r.Status, At: now, Finding: f})
+	}
+	clearAfter := t.ClearAfter
+	if clearAfter <= 0 {
+		clearAfter = DefaultClearAfter
 	}
 	for k, r := range t.recs {
 		if seen[k] || !inScope[r.Finding.Tank] {
@@ -94,8 +124,17 @@ func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Fi
 			delete(t.recs, k)
 			continue
 		}
+		r.Missed++
+		if r.Missed < clearAfter && !t.reset[r.Finding.Tank] {
+			r.Status = StatusOngoing
+			evs = append(evs, Event{Status: StatusOngoing, At: now, Finding: r.Finding})
+			continue
+		}
 		r.Status, r.ClearedAt = StatusCleared, now
 		evs = append(evs, Event{Status: StatusCleared, At: now, Finding: r.Finding})
+	}
+	for _, tank := range evaluated {
+		delete(t.reset, tank)
 	}
 	slices.SortFunc(evs, func(a, b Event) int {
 		return cmp.Or(cmp.Compare(a.Finding.Tank, b.Finding.Tank),

@@ -143,7 +143,7 @@ func (n WebhookNotifier) Notify(ctx context.Context, evs []Event) error {
 // WriteTable prints events as an aligned table for people.
 func WriteTable(w io.Writer, evs []Event) error {
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
-	fmt.Fprintln(tw, "TANK\tFINDING\tSTATUS\tCHANGE\tONSET\tEVIDENCE")
+	fmt.Fprintln(tw, "TANK\tFINDING\tSTATUS\tAT\tCHANGE\tONSET\tEVIDENCE")
 	for _, e := range evs {
 		f := e.Finding
 		kind := f.Kind
@@ -158,7 +158,11 @@ func WriteTable(w io.Writer, evs []Event) error {
 		if !f.Onset.IsZero() {
 			onset = f.Onset.UTC().Format("2006-01-02")
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", f.Tank, kind, e.Status, change, onset, oneLine(f.Evidence, 90))
+		at := "-"
+		if !e.At.IsZero() {
+			at = e.At.UTC().Format("2006-01-02")
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t%s\n", f.Tank, kind, e.Status, at, change, onset, oneLine(f.Evidence, 80))
 	}
 	return tw.Flush()
 }

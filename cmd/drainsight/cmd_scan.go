@@ -62,7 +62,7 @@ func runScan(ctx context.Context, e *env, args []string) error {
 	}
 	if *failOn {
 		for _, ev := range res.events {
-			if ev.Status != alert.StatusCleared {
+			if ev.At.Equal(res.now) && ev.Status != alert.StatusCleared {
 				return errFindings
 			}
 		}
@@ -98,7 +98,7 @@ func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath
 	if err := writeOutputs(outDir, res); err != nil {
 		return res, err
 	}
-	notifyAll(ctx, cfg, log, res.events)
+	notifyAll(ctx, cfg, log, res.now, res.events)
 	printSummary(e.stdout, res, outDir, time.Since(start))
 	return res, nil
 }
@@ -151,6 +151,7 @@ type findingRecord struct {
 	Kind         string     `json:"kind"`
 	Subtype      string     `json:"subtype,omitempty"`
 	Status       string     `json:"status"`
+	StatusAt     time.Time  `json:"status_at"`
 	DetectedAt   time.Time  `json:"detected_at"`
 	Onset        *time.Time `json:"onset"`
 	OnsetLo      *time.Time `json:"onset_lo,omitempty"`
@@ -159,7 +160,7 @@ type findingRecord struct {
 	Statistic    string     `json:"statistic"`
 	Value        float64    `json:"value"`
 	Threshold    float64    `json:"threshold"`
-	PValue       float64    `json:"p_value"`
+	PValue       *float64   `json:"p_value"`
 	Evidence     string     `json:"evidence"`
 	ForecastDate *time.Time `json:"forecast_date,omitempty"`
 }
@@ -201,10 +202,17 @@ func toEventRecord(f model.Fit) eventRecord {
 func toFindingRecord(ev alert.Event) findingRecord {
 	f := ev.Finding
 	r := findingRecord{
-		Tank: f.Tank, Kind: f.Kind, Subtype: f.Subtype, Status: string(ev.Status), DetectedAt: f.DetectedAt.UTC(),
+		Tank: f.Tank, Kind: f.Kind, Subtype: f.Subtype, Status: string(ev.Status), StatusAt: ev.At.UTC(), DetectedAt: f.DetectedAt.UTC(),
 		Onset: optTime(f.Onset), OnsetLo: optTime(f.OnsetLo), OnsetHi: optTime(f.OnsetHi),
 		MagnitudePct: sig(f.MagnitudePct), Statistic: f.Statistic, Value: sig(f.Value), Threshold: sig(f.Threshold),
-		PValue: sig(f.PValue), Evidence: f.Evidence,
+		Evidence: f.Evidence,
+	}
+	if !math.IsNaN(f.PValue) {
+		p := f.PValue
+		if p != 0 {
+			p = sig(p)
+		}
+		r.PValue = &p
 	}
 	if f.Forecast != nil {
 		r.ForecastDate = optTime(f.Forecast.Date)
@@ -253,11 +261,21 @@ func writeJSONL(path string, recs []any) error {
 	return os.Rename(tmp.Name(), path)
 }
 
+// notifyHorizon is how old a transition may be and still be notified.
+const notifyHorizon = 24 * time.Hour
+
 // notifyAll sends new and cleared findings to every configured notifier. A
 // notifier that fails is logged; the findings stay in the state and in
 // findings.jsonl.
-func notifyAll(ctx context.Context, cfg *config.Config, log *slog.Logger, evs []alert.Event) {
-	send := alert.Notifiable(evs)
+func notifyAll(ctx context.Context, cfg *config.Config, log *slog.Logger, now time.Time, evs []alert.Event) {
+	// Transitions found while replaying older history are recorded in
+	// findings.jsonl but not sent: nobody can act on a day-old page.
+	var send []alert.Event
+	for _, e := range alert.Notifiable(evs) {
+		if !e.At.Before(now.Add(-notifyHorizon)) {
+			send = append(send, e)
+		}
+	}
 	if len(send) == 0 {
 		return
 	}

@@ -90,6 +90,9 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		}
 		tanks = append(tanks, t)
 	}
+	// Windows start at a UTC midnight so that their ends meet the daily
+	// evaluation instants; samples before a tank's own start are dropped.
+	startNs -= ((startNs % int64(evalEvery)) + int64(evalEvery)) % int64(evalEvery)
 	windows := influx.Windows(startNs, untilNs, ix.QueryWindow)
 	for wi, w := range windows {
 		if len(ids) == 0 || ctx.Err() != nil {
@@ -139,6 +142,14 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				ids = append(ids, t.p.cfg.ID)
 			}
 		}
+		if end := w[1]; end < now.UnixNano() && wi < len(windows)-1 {
+			for _, t := range tanks {
+				if !t.failed && end > t.run.prevEvalNs && end%int64(evalEvery) == 0 {
+					at := time.Unix(0, end).UTC()
+					t.out.evals = append(t.out.evals, evaluation{at: at, findings: t.run.det.Evaluate(at, t.p.detOpt)})
+				}
+			}
+		}
 		if opt.progress != nil {
 			opt.progress(wi+1, len(windows), siteID)
 		}
@@ -146,11 +157,11 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	outs := make([]tankOutcome, 0, len(tanks))
 	for _, t := range tanks {
 		if t.run != nil {
-			t.out.samples, t.out.drains = t.run.total, t.run.drains
+			t.out.samples, t.out.drains, t.out.reset = t.run.total, t.run.drains, t.run.maintChanged
 		}
 		if t.out.err == nil && t.run != nil {
-			t.out.findings = t.run.det.Evaluate(now, t.p.detOpt)
-			j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, t.out.findings)
+			t.out.evals = append(t.out.evals, evaluation{at: now, findings: t.run.det.Evaluate(now, t.p.detOpt)})
+			j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, t.out.findings())
 		}
 		outs = append(outs, t.out)
 	}

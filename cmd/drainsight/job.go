@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"log/slog"
 	"slices"
+	"sort"
 	"strings"
 	"sync"
 	"time"
@@ -99,12 +100,39 @@ type scanOptions struct {
 
 // tankOutcome is what one tank gave in one pass.
 type tankOutcome struct {
-	tank     string
-	fits     []model.Fit
+	tank    string
+	fits    []model.Fit
+	evals   []evaluation // in time order; the last one is at the scan's now
+	samples int64
+	drains  int
+	err     error
+	// reset is set when maintenance records changed: the tank's findings
+	// clear at once if absent.
+	reset bool
+}
+
+// evaluation is one tank's active findings at one time.
+type evaluation struct {
+	at       time.Time
 	findings []detect.Finding
-	samples  int64
-	drains   int
-	err      error
+}
+
+// evalEvery is how often a pass evaluates the statistics while it replays
+// history (at UTC midnights), so that faults that came and went between two
+// passes (a stuck sensor, a data gap) are reported with their times.
+const evalEvery = 24 * time.Hour
+
+// nextEval returns the first evaluation instant after tNs.
+func nextEval(tNs int64) int64 {
+	return (tNs/int64(evalEvery) + 1) * int64(evalEvery)
+}
+
+// findings returns the tank's findings at the last evaluation.
+func (o *tankOutcome) findings() []detect.Finding {
+	if len(o.evals) == 0 {
+		return nil
+	}
+	return o.evals[len(o.evals)-1].findings
 }
 
 // scanResult is what one pass of the job gave.
@@ -279,27 +307,43 @@ func (j *job) scanSeries(p *plan, s *model.Series, now time.Time) tankOutcome {
 		return o
 	}
 	if s != nil {
+		// Push a day at a time and evaluate at each midnight that the
+		// previous pass did not evaluate.
 		i, _ := slices.BinarySearch(s.TimeNs, from)
-		part := &model.Series{Tank: s.Tank, TimeNs: s.TimeNs[i:], HeadM: s.HeadM[i:]}
-		if s.InflowM3s != nil {
-			part.InflowM3s = s.InflowM3s[i:]
+		for i < s.Len() {
+			cut := nextEval(s.TimeNs[i])
+			j := i + sort.Search(s.Len()-i, func(k int) bool { return s.TimeNs[i+k] >= cut })
+			part := &model.Series{Tank: s.Tank, TimeNs: s.TimeNs[i:j], HeadM: s.HeadM[i:j]}
+			if s.InflowM3s != nil {
+				part.InflowM3s = s.InflowM3s[i:j]
+			}
+			r.push(part)
+			i = j
+			if i < s.Len() && cut < now.UnixNano() && cut > r.prevEvalNs {
+				at := time.Unix(0, cut).UTC()
+				o.evals = append(o.evals, evaluation{at: at, findings: r.det.Evaluate(at, p.detOpt)})
+			}
 		}
-		r.push(part)
 	}
-	o.samples, o.drains = r.total, r.drains
+	o.samples, o.drains, o.reset = r.total, r.drains, r.maintChanged
 	o.fits, o.err = r.commit(true, now.UnixNano())
 	if o.err == nil {
-		o.findings = r.det.Evaluate(now, p.detOpt)
+		o.evals = append(o.evals, evaluation{at: now, findings: r.det.Evaluate(now, p.detOpt)})
 	}
 	return o
 }
 
-// updateAlerts runs the alert lifecycle over the tanks that were evaluated
-// and persists it.
+// updateAlerts runs the alert lifecycle over every evaluation of the pass
+// in time order (tanks evaluated at the same instant together) and persists
+// it. It returns every event of the pass: transitions through the replayed
+// history and the state at the last evaluation.
 func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event, error) {
 	var prev []alert.Record
-	var evaluated []string
-	var findings []detect.Finding
+	type slot struct {
+		tanks    []string
+		findings []detect.Finding
+	}
+	slots := map[int64]*slot{}
 	for _, o := range outcomes {
 		recs, err := j.st.Alerts(o.tank)
 		if err != nil {
@@ -312,13 +356,38 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 			}
 			prev = append(prev, r)
 		}
-		if o.err == nil {
-			evaluated = append(evaluated, o.tank)
-			findings = append(findings, o.findings...)
+		if o.err != nil {
+			continue
+		}
+		for _, ev := range o.evals {
+			sl := slots[ev.at.UnixNano()]
+			if sl == nil {
+				sl = &slot{}
+				slots[ev.at.UnixNano()] = sl
+			}
+			sl.tanks = append(sl.tanks, o.tank)
+			sl.findings = append(sl.findings, ev.findings...)
 		}
 	}
+	times := make([]int64, 0, len(slots))
+	for t := range slots {
+		times = append(times, t)
+	}
+	slices.Sort(times)
 	tr := alert.NewTracker(prev)
-	evs := tr.Update(now, evaluated, findings)
+	for _, o := range outcomes {
+		if o.reset && o.err == nil {
+			tr.ResetTank(o.tank)
+		}
+	}
+	var evs []alert.Event
+	for i, t := range times {
+		e := tr.Update(time.Unix(0, t).UTC(), slots[t].tanks, slots[t].findings)
+		if i < len(times)-1 {
+			e = alert.Notifiable(e) // history: transitions only
+		}
+		evs = append(evs, e...)
+	}
 	keep := map[string]bool{}
 	var put []store.AlertRecord
 	for _, r := range tr.Records() {
@@ -342,7 +411,13 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 }
 
 func alertKey(f detect.Finding) store.AlertKey {
-	return store.AlertKey{Tank: f.Tank, Kind: f.Kind, Subtype: f.Subtype}
+	// The same identity as alert.Key: outlet findings per kind, sensor
+	// faults per subtype.
+	k := store.AlertKey{Tank: f.Tank, Kind: f.Kind}
+	if f.Kind == "sensor_fault" {
+		k.Subtype = f.Subtype
+	}
+	return k
 }
 
 // errTankFailures reports how many tanks failed in a pass.

@@ -68,6 +68,12 @@ type tankRun struct {
 	drains int
 	seen   int64 // samples pushed since the last commit
 	total  int64 // samples pushed in this run
+	// prevEvalNs is the evaluation time of the previous pass (its
+	// checkpoint's UpdatedNs): history before it was evaluated already.
+	prevEvalNs int64
+	// maintChanged is set when maintenance records were added or removed
+	// since the previous pass: the baseline restarted.
+	maintChanged bool
 }
 
 // openTankRun loads the tank's checkpoint and detector state (replaying the
@@ -80,7 +86,7 @@ func openTankRun(st *store.Store, p *plan, log *slog.Logger) (*tankRun, int64, e
 	if err != nil {
 		return nil, 0, err
 	}
-	r.cp, r.hadCP = cp, ok
+	r.cp, r.hadCP, r.prevEvalNs = cp, ok, cp.UpdatedNs
 	recs, err := st.Maintenance(id)
 	if err != nil {
 		return nil, 0, err
@@ -96,6 +102,7 @@ func openTankRun(st *store.Store, p *plan, log *slog.Logger) (*tankRun, int64, e
 			return nil, 0, fmt.Errorf("tank %s: stored detector state: %w", id, err)
 		}
 	}
+	r.maintChanged = saved.Detector != nil && saved.Maintenance != r.maint
 	if saved.Detector == nil || saved.Maintenance != r.maint {
 		if r.det, err = replay(st, p, recs); err != nil {
 			return nil, 0, err
