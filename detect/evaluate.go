@@ -473,7 +473,7 @@ func (s *State) recordFindings(now time.Time, opt Options) []Finding {
 	split := func(idle bool) (base, rec []SensorRec) {
 		var all []SensorRec
 		for _, r := range s.Sensor.Recs {
-			if r.Idle == idle && r.TimeNs >= s.Sensor.EpochNs {
+			if r.Idle == idle && r.TimeNs >= s.Sensor.EpochNs && !math.IsNaN(r.NoiseM) {
 				all = append(all, r)
 			}
 		}
@@ -579,10 +579,17 @@ func (s *State) recordFindings(now time.Time, opt Options) []Finding {
 	return out
 }
 
+// medianNoise is the median NoiseM of the records that carry one (drain
+// records kept only for their empty-tank reading have NaN).
 func medianNoise(r []SensorRec) float64 {
-	x := make([]float64, len(r))
-	for i, v := range r {
-		x[i] = v.NoiseM
+	x := make([]float64, 0, len(r))
+	for _, v := range r {
+		if !math.IsNaN(v.NoiseM) {
+			x = append(x, v.NoiseM)
+		}
+	}
+	if len(x) == 0 {
+		return math.NaN()
 	}
 	return median(x)
 }

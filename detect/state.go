@@ -170,10 +170,19 @@ func (s *State) AddFit(f model.Fit, opt Options) {
 		return
 	}
 	s.LastFitNs = f.EndNs
-	if f.Quality != model.QualityReject {
+	switch {
+	case f.Quality == model.QualityA:
 		s.Sensor.Recs = appendCapped(s.Sensor.Recs, SensorRec{
 			TimeNs: f.EndNs, N: f.N, Spikes: f.Outliers, NoiseM: f.SigmaM,
 			EmptyHeadM: f.EmptyHeadM, HasEmpty: f.Complete && !math.IsNaN(f.EmptyHeadM),
+		}, maxSensorRecs)
+	case f.Quality != model.QualityReject && f.Complete && !math.IsNaN(f.EmptyHeadM):
+		// A drain the square-root law fits less well (grade B or C: inflow,
+		// a valve closing, a transient) says little about the sensor: its
+		// outliers and residual scatter come from the model, not the
+		// instrument. Only its empty-tank reading is kept, for drift.
+		s.Sensor.Recs = appendCapped(s.Sensor.Recs, SensorRec{
+			TimeNs: f.EndNs, NoiseM: math.NaN(), EmptyHeadM: f.EmptyHeadM, HasEmpty: true,
 		}, maxSensorRecs)
 	}
 	if qualityRank(f.Quality) < qualityRank(opt.MinQuality) || !(f.KM25s > 0) || math.IsInf(f.KM25s, 0) {

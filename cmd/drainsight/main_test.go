@@ -88,31 +88,45 @@ func TestDemoEndToEnd(t *testing.T) {
 	if err != nil {
 		t.Fatalf("demo: %v\n%s\n%s", err, out, stderr)
 	}
+	// The pass evaluates daily through the history, so findings.jsonl holds
+	// every transition (with its date) and the state at the end.
 	findings := readJSONL(t, filepath.Join(dir, "findings.jsonl"))
-	kinds := map[string][]string{}
+	kinds := map[string][]string{} // every kind/subtype reported per tank
+	final := map[string][]string{} // still active at the end
 	for _, f := range findings {
-		kinds[f["tank"].(string)] = append(kinds[f["tank"].(string)], f["kind"].(string))
-		if f["status"] != "new" {
-			t.Errorf("first scan: %v status %v, want new", f["tank"], f["status"])
+		tank, ks := f["tank"].(string), f["kind"].(string)
+		if sub, _ := f["subtype"].(string); sub != "" {
+			ks += "/" + sub
+		}
+		kinds[tank] = append(kinds[tank], ks)
+		if f["status"] != "cleared" && f["status_at"] == "2026-05-05T00:00:00Z" {
+			final[tank] = append(final[tank], ks)
 		}
 	}
-	want := map[string]string{
-		"KV-SHT-2": "restriction",  // gradual fouling
-		"KV-SMP-4": "restriction",  // abrupt blockage
-		"KV-CDT-3": "tank_leak",    // shell leak
-		"KV-PHT-5": "sensor_fault", // drifting level sensor
+	for _, c := range []struct{ tank, kind string }{
+		{"KV-SHT-2", "restriction/gradual"}, // fouling ramp
+		{"KV-SMP-4", "restriction/abrupt"},  // blockage
+		{"KV-CDT-3", "tank_leak"},           // shell leak
+		{"KV-PHT-5", "sensor_fault/drift"},  // drifting level sensor
+	} {
+		if !contains(final[c.tank], c.kind) {
+			t.Errorf("%s: active at the end %v, want %s", c.tank, final[c.tank], c.kind)
+		}
 	}
-	for tank, kind := range want {
-		if got := kinds[tank]; len(got) == 0 || !contains(got, kind) {
-			t.Errorf("%s: findings %v, want %s", tank, got, kind)
+	for _, c := range []struct{ tank, kind string }{
+		{"KV-PHT-5", "sensor_fault/stuck"}, // frozen for 6 h, then recovered
+		{"KV-DTB-6", "sensor_fault/gap"},   // 8 h without data
+	} {
+		if !contains(kinds[c.tank], c.kind) {
+			t.Errorf("%s: reported %v, want %s at some time", c.tank, kinds[c.tank], c.kind)
 		}
 	}
 	for _, k := range kinds["KV-PHT-5"] {
-		if k != "sensor_fault" {
-			t.Errorf("KV-PHT-5: sensor drift reported as %s", k)
+		if !strings.HasPrefix(k, "sensor_fault") {
+			t.Errorf("KV-PHT-5: its sensor faults were reported as %s", k)
 		}
 	}
-	for _, healthy := range []string{"KV-BWR-1", "KV-DTB-6"} {
+	for _, healthy := range []string{"KV-BWR-1", "KV-FWT-7"} {
 		if got := kinds[healthy]; len(got) > 0 {
 			t.Errorf("healthy tank %s has findings %v", healthy, got)
 		}
@@ -155,7 +169,7 @@ func TestDemoEndToEnd(t *testing.T) {
 	}
 
 	// Golden: the findings of the first scan, numbers to 3 significant digits.
-	checkGolden(t, "demo_findings.golden", normalize(findings, []string{"tank", "kind", "subtype", "status", "onset"}))
+	checkGolden(t, "demo_findings.golden", normalize(findings, []string{"tank", "kind", "subtype", "status", "status_at", "onset"}))
 }
 
 func contains(s []string, v string) bool {
@@ -175,7 +189,7 @@ func normalize(recs []map[string]any, keys []string) string {
 		var parts []string
 		for _, k := range keys {
 			v, _ := r[k].(string)
-			if len(v) >= 10 && (k == "onset" || strings.HasSuffix(k, "_at")) {
+			if len(v) >= 10 && (k == "onset" || strings.HasSuffix(k, "_at")) { // the day
 				v = v[:10]
 			}
 			parts = append(parts, k+"="+v)
