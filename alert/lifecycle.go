@@ -22,14 +22,14 @@ const (
 
 // Record is one finding's life, persisted between runs (JSON).
 type Record struct {
-	Key       string         `json:"key"`
-	Status    Status         `json:"status"`
-	FirstSeen time.Time      `json:"first_seen"`
-	LastSeen  time.Time      `json:"last_seen"`
-	ClearedAt time.Time      `json:"cleared_at,omitzero"`
+	Key       string    `json:"key"`
+	Status    Status    `json:"status"`
+	FirstSeen time.Time `json:"first_seen"`
+	LastSeen  time.Time `json:"last_seen"`
+	ClearedAt time.Time `json:"cleared_at,omitzero"`
 	// Missed counts the consecutive evaluations of its tank without it.
-	Missed int `json:"missed,omitempty"`
-	Finding   detect.Finding `json:"finding"`
+	Missed  int            `json:"missed,omitempty"`
+	Finding detect.Finding `json:"finding"`
 }
 
 // Event is a transition worth telling someone about, or an ongoing finding
