@@ -87,6 +87,8 @@ type csvRows struct {
 	iTime      int // -1 when absent
 	iValue     int
 	iTag       int
+	usable     bool // the table has time, numeric value and tank columns
+	noFast     bool // tests: general path only
 	timeOK     bool // the time column is a dateTime
 	tagOK      bool // the tank column is a string
 	kind       valueKind
@@ -191,16 +193,17 @@ func eqMask(x, pat uint64) uint64 {
 // at a time. It returns false, leaving the record to quotedRecord, when the
 // line holds a '"'.
 func (c *csvRows) split(line []byte) bool {
-	c.cells = c.cells[:0]
+	cells := c.cells[:0]
 	start, i := 0, 0
 	for ; i+8 <= len(line); i += 8 {
 		x := binary.LittleEndian.Uint64(line[i:])
 		if eqMask(x, quotes8) != 0 {
+			c.cells = cells
 			return false
 		}
 		for m := eqMask(x, commas8); m != 0; m &= m - 1 {
 			j := i + bits.TrailingZeros64(m)>>3
-			c.cells = append(c.cells, line[start:j])
+			cells = append(cells, line[start:j])
 			start = j + 1
 		}
 	}
@@ -210,25 +213,27 @@ func (c *csvRows) split(line []byte) bool {
 		x := binary.LittleEndian.Uint64(line[len(line)-8:]) >> (8 * (8 - rem))
 		keep := uint64(1)<<(8*rem) - 1 // the rem low bytes
 		if eqMask(x, quotes8)&keep != 0 {
+			c.cells = cells
 			return false
 		}
 		for m := eqMask(x, commas8) & keep; m != 0; m &= m - 1 {
 			j := i + bits.TrailingZeros64(m)>>3
-			c.cells = append(c.cells, line[start:j])
+			cells = append(cells, line[start:j])
 			start = j + 1
 		}
 	} else {
 		for ; i < len(line); i++ {
 			switch line[i] {
 			case ',':
-				c.cells = append(c.cells, line[start:i])
+				cells = append(cells, line[start:i])
 				start = i + 1
 			case '"':
-				return false
+				c.cells = cells
+			return false
 			}
 		}
 	}
-	c.cells = append(c.cells, line[start:])
+	c.cells = append(cells, line[start:])
 	return true
 }
 
@@ -336,7 +341,23 @@ func (c *csvRows) readErr() error { return c.err }
 // At the end of the input it returns ok false and a nil error; an in-band
 // query error, malformed CSV or a failed read are returned as errors.
 func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error) {
-	for c.record() {
+	for {
+		if c.usable && !c.noFast {
+			tank, ts, vs, fast := c.fastRow()
+			if fast {
+				if len(tank) == 0 || len(ts) == 0 || len(vs) == 0 {
+					continue
+				}
+				tNs, v, err = c.convert(ts, vs)
+				if err != nil {
+					return nil, 0, 0, false, err
+				}
+				return tank, tNs, v, true, nil
+			}
+		}
+		if !c.record() {
+			return nil, 0, 0, false, c.readErr()
+		}
 		cells := c.cells
 		if len(cells) <= 1 {
 			continue
@@ -374,7 +395,7 @@ func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error)
 			}
 			return nil, 0, 0, false, &inBandError{msg: msg}
 		}
-		if c.iTime < 0 || c.iValue < 0 || c.iTag < 0 || !c.timeOK || !c.tagOK || c.kind == valueOther {
+		if !c.usable {
 			continue
 		}
 		tank = c.cell(c.iTag)
@@ -383,32 +404,104 @@ func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error)
 		if len(tank) == 0 || len(ts) == 0 || len(vs) == 0 {
 			continue
 		}
-		tNs, err = c.timeNs(ts)
+		tNs, v, err = c.convert(ts, vs)
 		if err != nil {
-			return nil, 0, 0, false, fmt.Errorf("line %d: _time %q: %w", c.line, ts, err)
-		}
-		s := unsafe.String(unsafe.SliceData(vs), len(vs)) // strconv keeps no reference (its errors clone the input)
-		switch c.kind {
-		case valueDouble:
-			var fast bool
-			if v, fast = fastFloat(vs); !fast {
-				v, err = strconv.ParseFloat(s, 64)
-			}
-		case valueLong:
-			var x int64
-			x, err = strconv.ParseInt(s, 10, 64)
-			v = float64(x)
-		case valueULong:
-			var x uint64
-			x, err = strconv.ParseUint(s, 10, 64)
-			v = float64(x)
-		}
-		if err != nil {
-			return nil, 0, 0, false, fmt.Errorf("line %d: _value: %w", c.line, err)
+			return nil, 0, 0, false, err
 		}
 		return tank, tNs, v, true, nil
 	}
-	return nil, 0, 0, false, c.readErr()
+}
+
+// convert parses the time and value cells of a data row.
+func (c *csvRows) convert(ts, vs []byte) (tNs int64, v float64, err error) {
+	tNs, err = c.timeNs(ts)
+	if err != nil {
+		return 0, 0, fmt.Errorf("line %d: _time %q: %w", c.line, ts, err)
+	}
+	s := unsafe.String(unsafe.SliceData(vs), len(vs)) // strconv keeps no reference (its errors clone the input)
+	switch c.kind {
+	case valueDouble:
+		var fast bool
+		if v, fast = fastFloat(vs); !fast {
+			v, err = strconv.ParseFloat(s, 64)
+		}
+	case valueLong:
+		var x int64
+		x, err = strconv.ParseInt(s, 10, 64)
+		v = float64(x)
+	case valueULong:
+		var x uint64
+		x, err = strconv.ParseUint(s, 10, 64)
+		v = float64(x)
+	}
+	if err != nil {
+		return 0, 0, fmt.Errorf("line %d: _value: %w", c.line, err)
+	}
+	return tNs, v, nil
+}
+
+// maxFastCells bounds the cells of a record that fastRow handles.
+const maxFastCells = 16
+
+const newlines8 = 0x0a0a0a0a0a0a0a0a // '\n'
+
+// fastRow handles the common record of a usable table in one pass over the
+// buffer: a complete line, without quotes, with the table's number of cells
+// and an empty first cell. It finds the line end and the commas eight bytes
+// at a time and returns the tank, time and value cells (defaults applied).
+// For anything else it consumes nothing and returns fast false, leaving the
+// record to the general path.
+func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
+	if c.ncol > maxFastCells {
+		return nil, nil, nil, false
+	}
+	b := c.buf[c.r:c.w]
+	var pos [maxFastCells]int // comma positions
+	n, end := 0, -1
+	for i := 0; i+8 <= len(b); i += 8 {
+		x := binary.LittleEndian.Uint64(b[i:])
+		qm, cm := eqMask(x, quotes8), eqMask(x, commas8)
+		if nm := eqMask(x, newlines8); nm != 0 {
+			below := (nm & -nm) - 1 // the bytes before the first newline
+			qm &= below
+			cm &= below
+			end = i + bits.TrailingZeros64(nm)>>3
+		}
+		if qm != 0 {
+			return nil, nil, nil, false
+		}
+		for ; cm != 0; cm &= cm - 1 {
+			if n == len(pos) {
+				return nil, nil, nil, false
+			}
+			pos[n] = i + bits.TrailingZeros64(cm)>>3
+			n++
+		}
+		if end >= 0 {
+			break
+		}
+	}
+	if end < 0 || n+1 != c.ncol || pos[0] != 0 {
+		return nil, nil, nil, false
+	}
+	lineEnd := end
+	if lineEnd > 0 && b[lineEnd-1] == '\r' {
+		lineEnd--
+	}
+	if pos[n-1] >= lineEnd { // the CR was in the last cell's place: let the general path judge
+		return nil, nil, nil, false
+	}
+	c.r += end + 1
+	c.lines++
+	c.line = c.lines
+	pos[n] = lineEnd
+	get := func(k int) []byte {
+		if cell := b[pos[k-1]+1 : pos[k]]; len(cell) > 0 {
+			return cell
+		}
+		return c.defaults[k]
+	}
+	return get(c.iTag), get(c.iTime), get(c.iValue), true
 }
 
 // cell returns cell i of the current record, or the column's default when
@@ -425,7 +518,7 @@ func (c *csvRows) annotation(cells [][]byte) error {
 	if !c.annot {
 		// A new table: forget the previous one.
 		c.inTable, c.annot = true, true
-		c.haveHeader, c.haveType, c.errTable = false, false, false
+		c.haveHeader, c.haveType, c.errTable, c.usable = false, false, false, false
 		c.ncol = len(cells)
 		c.iTime, c.iValue, c.iTag = -1, -1, -1
 		c.types = resize(c.types, c.ncol)
@@ -467,7 +560,7 @@ func (c *csvRows) header(cells [][]byte) error {
 	}
 	c.haveHeader = true
 	if string(cells[1]) == "error" {
-		c.errTable = true
+		c.errTable, c.usable = true, false
 		return nil
 	}
 	for i := 1; i < len(cells); i++ {
@@ -493,6 +586,7 @@ func (c *csvRows) header(cells [][]byte) error {
 			c.kind = valueULong
 		}
 	}
+	c.usable = c.timeOK && c.tagOK && c.kind != valueOther
 	return nil
 }
 

@@ -22,7 +22,13 @@ type row struct {
 
 // readAll runs the reader over body and collects the rows.
 func readAll(body io.Reader, tag string) ([]row, error) {
+	return readAllPath(body, tag, false)
+}
+
+// readAllPath is readAll with the fast path for plain rows on or off.
+func readAllPath(body io.Reader, tag string, noFast bool) ([]row, error) {
 	rows := newCSVRows(body, tag)
+	rows.noFast = noFast
 	var out []row
 	for {
 		tank, t, v, ok, err := rows.next()
@@ -86,7 +92,11 @@ func TestCSVRows(t *testing.T) {
 			if !reflect.DeepEqual(got, tc.want) {
 				t.Errorf("got %v, want %v", got, tc.want)
 			}
-			// One byte per Read must give the same answer.
+			// The general path alone, and one byte per Read, must give the same answer.
+			got2, err2 := readAllPath(strings.NewReader(tc.body), "tank", true)
+			if !reflect.DeepEqual(got2, got) || fmt.Sprint(err2) != fmt.Sprint(err) {
+				t.Errorf("general path only: got %v, %v; want %v, %v", got2, err2, got, err)
+			}
 			got1, err1 := readAll(&oneByteReader{strings.NewReader(tc.body)}, "tank")
 			if !reflect.DeepEqual(got1, got) || fmt.Sprint(err1) != fmt.Sprint(err) {
 				t.Errorf("byte by byte: got %v, %v; want %v, %v", got1, err1, got, err)
@@ -250,7 +260,8 @@ func FuzzFastFloat(f *testing.F) {
 }
 
 // FuzzCSVRows feeds arbitrary bodies: the reader must not panic, and must
-// give the same answer however the input is split into reads.
+// give the same answer however the input is split into reads, and with its
+// fast path for plain rows turned off.
 func FuzzCSVRows(f *testing.F) {
 	f.Add([]byte(hdr + ",,0,2024-03-01T00:00:00Z,1.5,T1\r\n,,1,2024-03-01T00:00:00Z,2,\"a,\"\"b\"\r\n"))
 	f.Add([]byte("#datatype,string,string\n#group,true,true\n#default,,\n,error,reference\n,boom,1\n"))
@@ -262,6 +273,10 @@ func FuzzCSVRows(f *testing.F) {
 		got1, err1 := readAll(&oneByteReader{bytes.NewReader(body)}, "tank")
 		if !reflect.DeepEqual(got, got1) && !(len(got) == 0 && len(got1) == 0) || fmt.Sprint(err) != fmt.Sprint(err1) {
 			t.Errorf("whole: %v, %v; byte by byte: %v, %v", got, err, got1, err1)
+		}
+		got2, err2 := readAllPath(bytes.NewReader(body), "tank", true)
+		if !reflect.DeepEqual(got, got2) && !(len(got) == 0 && len(got2) == 0) || fmt.Sprint(err) != fmt.Sprint(err2) {
+			t.Errorf("fast path: %v, %v; general path only: %v, %v", got, err, got2, err2)
 		}
 	})
 }
