@@ -229,7 +229,7 @@ func (c *csvRows) split(line []byte) bool {
 				start = i + 1
 			case '"':
 				c.cells = cells
-			return false
+				return false
 			}
 		}
 	}
