@@ -3,10 +3,13 @@ package influx
 import (
 	"bytes"
 	"context"
+	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 	"net/http"
 	"net/http/httptest"
+	"os"
 	"strings"
 	"testing"
 	"time"
@@ -151,4 +154,81 @@ func BenchmarkCSVRows(b *testing.B) {
 		}
 	}
 	b.ReportMetric(b.Elapsed().Seconds()*1e9/float64(b.N*benchTanks*benchRows), "ns/point")
+}
+
+// BenchmarkIntegrationPullOverFloor compares Pull with the download of the
+// same query result from the real 1.8 server started by
+//
+//	scripts/influxd.sh run -- go test ./ingest/influx/ -run '^$' -bench Integration
+//
+// for 10 tanks × 2 days of 10 s samples, with the result plain and gzipped.
+func BenchmarkIntegrationPullOverFloor(b *testing.B) {
+	u := os.Getenv("DRAINSIGHT_INFLUX_URL")
+	if u == "" {
+		b.Skip("needs the test server of scripts/influxd.sh")
+	}
+	conn := Conn{URL: u, Bucket: os.Getenv("DRAINSIGHT_INFLUX_BUCKET"), Token: os.Getenv("DRAINSIGHT_INFLUX_TOKEN")}
+	ctx := context.Background()
+	const tanks, rows = 10, 2 * 8640
+	c, err := New(conn, Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer c.Close()
+	meas := "bench_pull"
+	var ids []string
+	for k := range tanks {
+		id := fmt.Sprintf("T%02d", k)
+		ids = append(ids, id)
+		ts, vs := make([]int64, rows), make([]float64, rows)
+		for i := range rows {
+			ts[i], vs[i] = t0+int64(i)*10e9, math.Round((3-float64(i%500)*0.005+float64(k)*0.01)*1e4)/1e4
+		}
+		if err := c.WriteLevels(ctx, meas, "level", "tank", id, ts, vs); err != nil {
+			b.Fatal(err)
+		}
+	}
+	stop := t0 + int64(rows)*10e9
+	for _, gz := range []bool{false, true} {
+		b.Run(fmt.Sprintf("gzip=%v", gz), func(b *testing.B) {
+			c, err := New(conn, Options{QueryGzip: gz})
+			if err != nil {
+				b.Fatal(err)
+			}
+			defer c.Close()
+			s, _ := c.Source(SeriesSpec{Measurement: meas, Field: "level"})
+			reqBody, _ := json.Marshal(queryRequest{Query: s.Flux(ids, t0, stop), Type: "flux", Dialect: queryDialect{
+				Annotations: []string{"datatype", "group", "default"}, Delimiter: ",", Header: true}})
+			hc := &http.Client{}
+			var pullD, floorD time.Duration
+			var sum float64
+			for b.Loop() {
+				t := time.Now()
+				req, _ := http.NewRequest("POST", c.queryURL, bytes.NewReader(reqBody))
+				req.Header.Set("Authorization", "Token "+conn.Token)
+				req.Header.Set("Content-Type", "application/json")
+				if gz {
+					req.Header.Set("Accept-Encoding", "gzip") // counted compressed: the floor does not inflate
+				} else {
+					req.Header.Set("Accept-Encoding", "identity")
+				}
+				resp, err := hc.Do(req)
+				if err != nil {
+					b.Fatal(err)
+				}
+				io.Copy(io.Discard, resp.Body)
+				resp.Body.Close()
+				floorD += time.Since(t)
+				t = time.Now()
+				n, err := s.Pull(ctx, ids, t0, stop, func(_ string, _ int64, v float64) { sum += v })
+				if err != nil || n != tanks*rows {
+					b.Fatalf("n=%d err=%v", n, err)
+				}
+				pullD += time.Since(t)
+			}
+			b.ReportMetric(pullD.Seconds()/floorD.Seconds(), "pull/floor")
+			b.ReportMetric(float64(tanks*rows)*float64(b.N)/pullD.Seconds(), "pull-points/s")
+			b.ReportMetric(float64(tanks*rows)*float64(b.N)/floorD.Seconds(), "floor-points/s")
+		})
+	}
 }
