@@ -67,15 +67,15 @@ type csvRows struct {
 	eof bool  // src returned io.EOF
 	err error // a read error other than io.EOF, returned once buf is drained
 
-	dayKey [11]byte // "YYYY-MM-DDT" of the last time parsed by hand
-	dayNs  int64    // its midnight in Unix ns; dayKey[0] == 0: none yet
-	line   int      // physical line number of the last record's first line (1-based)
-	lines  int      // physical lines consumed so far
-	cells  [][]byte // cells of the current record (into buf or scratch)
-	scr    []byte   // a quoted record as read
-	out    []byte   // its unquoted cells
-	bounds [][2]int // cell bounds in out
-	tagCol string   // name of the tank column
+	dayKey [2]uint64 // bytes 0-7 and 3-10 ("YYYY-MM-DDT") of the last time parsed by hand; 0: none
+	dayNs  int64     // its midnight in Unix ns
+	line   int       // physical line number of the last record's first line (1-based)
+	lines  int       // physical lines consumed so far
+	cells  [][]byte  // cells of the current record (into buf or scratch)
+	scr    []byte    // a quoted record as read
+	out    []byte    // its unquoted cells
+	bounds [][2]int  // cell bounds in out
+	tagCol string    // name of the tank column
 
 	// Current table.
 	inTable    bool // an annotation block or a table is open
@@ -599,7 +599,7 @@ func (e *inBandError) Error() string { return "query error in the result: " + e.
 // timeNs is parseTimeNs with the date part of the previous time reused:
 // consecutive samples nearly always share it.
 func (c *csvRows) timeNs(b []byte) (int64, error) {
-	if len(b) >= 20 && c.dayKey[0] != 0 && string(b[:11]) == string(c.dayKey[:]) {
+	if len(b) >= 20 && binary.LittleEndian.Uint64(b) == c.dayKey[0] && binary.LittleEndian.Uint64(b[3:]) == c.dayKey[1] && c.dayKey[0] != 0 {
 		if ns, ok := clockNs(b); ok {
 			return c.dayNs + ns, nil
 		}
@@ -608,7 +608,7 @@ func (c *csvRows) timeNs(b []byte) (int64, error) {
 	if err == nil && len(b) >= 20 {
 		if clk, ok := clockNs(b); ok {
 			if _, ok := fastTimeNs(b); ok {
-				copy(c.dayKey[:], b[:11])
+				c.dayKey = [2]uint64{binary.LittleEndian.Uint64(b), binary.LittleEndian.Uint64(b[3:])}
 				c.dayNs = ns - clk
 			}
 		}
@@ -732,35 +732,44 @@ var pow10 = [...]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10,
 // quotient, the value strconv.ParseFloat returns (the classic exact fast path
 // of decimal conversion). Any other form returns ok false.
 func fastFloat(b []byte) (float64, bool) {
-	i := 0
-	neg := false
+	i, neg := 0, false
 	if len(b) > 0 && b[0] == '-' {
 		neg, i = true, 1
 	}
 	var m uint64
-	nd, k := 0, 0 // digits, digits after the point
-	dot := false
 	start := i
 	for ; i < len(b); i++ {
-		ch := b[i]
-		if ch == '.' {
-			if dot {
-				return 0, false
-			}
-			dot = true
-			continue
-		}
-		d := ch - '0'
+		d := b[i] - '0'
 		if d > 9 {
-			return 0, false
+			break
 		}
 		m = m*10 + uint64(d)
-		nd++
-		if dot {
-			k++
+	}
+	nd := i - start
+	if nd == 0 {
+		return 0, false
+	}
+	k := 0
+	if i < len(b) {
+		if b[i] != '.' {
+			return 0, false
+		}
+		i++
+		fs := i
+		for ; i < len(b); i++ {
+			d := b[i] - '0'
+			if d > 9 {
+				return 0, false
+			}
+			m = m*10 + uint64(d)
+		}
+		k = i - fs
+		nd += k
+		if k == 0 {
+			return 0, false
 		}
 	}
-	if nd == 0 || nd > 19 || m > 1<<53 || k > 22 || (dot && (b[start] == '.' || b[len(b)-1] == '.')) {
+	if nd > 19 || m > 1<<53 || k > 22 {
 		return 0, false
 	}
 	f := float64(m) / pow10[k]
