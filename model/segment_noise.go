@@ -22,20 +22,20 @@ type noiseEstimator struct {
 	start   int64 // current block [start, end)
 	end     int64
 	started bool
-	d2      []float64
+	d2      []uint64 // bit patterns of |d2| in the current block (see medianBits)
 	ests    [noiseBlocks]float64
 	sorted  []float64 // ests[:ne] in ascending order
 	ne      int
 	epos    int
 	next    int // size of the block at which a provisional estimate is made
 	sigma   float64
-	tmp     []float64
+	sa, sb  [noiseBlockCap]uint64 // scratch of medianBits
 }
 
 func (e *noiseEstimator) init() {
 	e.sigma = noiseDefaultM
 	e.next = 16
-	e.d2 = make([]float64, 0, 256)
+	e.d2 = make([]uint64, 0, noiseBlockCap)
 }
 
 func floorDiv(a, b int64) int64 {
@@ -61,11 +61,10 @@ func (e *noiseEstimator) add(t int64, ad2 float64) bool {
 		}
 	}
 	if len(e.d2) < noiseBlockCap && !math.IsNaN(ad2) {
-		e.d2 = append(e.d2, ad2)
+		e.d2 = append(e.d2, math.Float64bits(ad2))
 		if e.ne == 0 && len(e.d2) == e.next {
 			e.next *= 2
-			e.tmp = append(e.tmp[:0], e.d2...)
-			e.sigma = 1.4826 * median(e.tmp) / math.Sqrt(6)
+			e.sigma = 1.4826 * e.medianBits(e.d2) / math.Sqrt(6)
 			changed = true
 		}
 	}
@@ -77,7 +76,7 @@ func (e *noiseEstimator) finish() bool {
 	if len(e.d2) < 5 {
 		return false
 	}
-	b := 1.4826 * median(e.d2) / math.Sqrt(6)
+	b := 1.4826 * e.medianBits(e.d2) / math.Sqrt(6)
 	if e.ne == noiseBlocks {
 		// the oldest block leaves the sorted copy
 		i, _ := slices.BinarySearch(e.sorted, e.ests[e.epos])
@@ -106,7 +105,7 @@ func median(x []float64) float64 {
 		return math.NaN()
 	}
 	k := n / 2
-	m := selectK(x, k)
+	m := selectKth(x, k)
 	if n&1 == 1 {
 		return m
 	}
@@ -120,45 +119,75 @@ func median(x []float64) float64 {
 	return 0.5 * (lo + m)
 }
 
-// selectK partially sorts x so that x[k] is the k-th smallest value and
-// returns it (Hoare's quickselect, median-of-three pivot). NaNs are not
-// expected.
-func selectK(x []float64, k int) float64 {
-	lo, hi := 0, len(x)-1
-	for hi > lo {
-		mid := lo + (hi-lo)/2
-		if x[mid] < x[lo] {
-			x[mid], x[lo] = x[lo], x[mid]
-		}
-		if x[hi] < x[lo] {
-			x[hi], x[lo] = x[lo], x[hi]
-		}
-		if x[hi] < x[mid] {
-			x[hi], x[mid] = x[mid], x[hi]
-		}
-		p := x[mid]
-		i, j := lo, hi
-		for i <= j {
-			for x[i] < p {
-				i++
-			}
-			for x[j] > p {
-				j--
-			}
-			if i <= j {
-				x[i], x[j] = x[j], x[i]
-				i++
-				j--
-			}
-		}
-		switch {
-		case k <= j:
-			hi = j
-		case k >= i:
-			lo = i
-		default:
-			return x[k]
-		}
+// medianBits returns the median of the non-negative values whose
+// math.Float64bits patterns are in x (not empty, at most noiseBlockCap),
+// leaving x as it is. For x ≥ +0, NaN excluded, the bit patterns order as
+// the values do, so the result is the value median gives on the floats:
+// the middle order statistic, or the mean of the two middle ones.
+//
+// Each round splits the candidates around the median of three p into the
+// values < p, written forward from the front of a scratch buffer, and the
+// values > p, written backward from its end, in one pass without
+// data-dependent branches: every value is stored at both write positions
+// and only the position on its side advances, so no store is read back
+// within the pass. The values == p, at least one, are only counted. The
+// two middle ranks k-1 and k are followed together; when they part, the
+// one outside the run of p is the largest (smallest) of its side. Runs of
+// equal values, common with quantised readings, end the search early.
+func (e *noiseEstimator) medianBits(x []uint64) float64 {
+	n := len(x)
+	k := n / 2
+	klo := k
+	if n&1 == 0 {
+		klo = k - 1
 	}
-	return x[k]
+	src := x
+	bufs := [2][]uint64{e.sa[:], e.sb[:]}
+	var vlo, vhi uint64
+	for r := 0; ; r++ {
+		m := len(src)
+		if m == 1 {
+			vlo, vhi = src[0], src[0]
+			break
+		}
+		a, b, c := src[0], src[m/2], src[m-1]
+		p := max(min(a, b), min(max(a, b), c))
+		dst := bufs[r&1][:m]
+		lt, gt := 0, m-1
+		for _, v := range src {
+			dst[lt] = v
+			dst[gt] = v
+			lt += b2i(v < p)
+			gt -= b2i(v > p)
+		}
+		eq := gt + 1 // values < p are dst[:lt], values > p dst[eq:]
+		switch {
+		case k < lt: // both ranks among the smaller values
+			src = dst[:lt]
+			continue
+		case klo >= eq: // both among the larger
+			src = dst[eq:]
+			klo, k = klo-eq, k-eq
+			continue
+		}
+		vlo, vhi = p, p
+		if klo < lt {
+			vlo = slices.Max(dst[:lt])
+		}
+		if k >= eq {
+			vhi = slices.Min(dst[eq:])
+		}
+		break
+	}
+	if n&1 == 1 {
+		return math.Float64frombits(vhi)
+	}
+	return 0.5 * (math.Float64frombits(vlo) + math.Float64frombits(vhi))
+}
+
+func b2i(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
 }
