@@ -21,9 +21,15 @@ import (
 const scanAbout = `One pass of the job: read every tank's level history (files, or InfluxDB
 from each tank's checkpoint), cut out the gravity drains, fit the outlet
 constant K of each, update each tank's statistics in the state file, and
-report findings. Writes DIR/events.jsonl (the drains fitted in this pass) and
-DIR/findings.jsonl (every finding with its status new, ongoing or cleared),
-notifies new and cleared findings, and prints a short summary.
+report findings. The statistics are evaluated at every UTC midnight of the
+history read (that earlier passes did not evaluate) and at the end, so faults
+that came and went between passes are reported with their dates.
+
+Writes DIR/events.jsonl (the drains fitted in this pass) and
+DIR/findings.jsonl (every transition of the pass and the state at the end:
+new, ongoing or cleared), notifies the new and cleared findings of the last
+24 h, and prints a short summary. A tank's first InfluxDB scan reads 7 days;
+use backfill for more.
 
 Running scan again over the same data fits nothing twice and repeats no alert.
 Exit status: 0 done, 1 error (a tank failed), 2 bad usage, 3 with
