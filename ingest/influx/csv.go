@@ -64,6 +64,7 @@ type csvRows struct {
 	buf []byte // input buffer; buf[r:w] is unread
 	r   int
 	w   int
+	qAt int   // index in buf of the first '"' at or after r (w if none); below r: to be found again
 	eof bool  // src returned io.EOF
 	err error // a read error other than io.EOF, returned once buf is drained
 
@@ -97,7 +98,7 @@ type csvRows struct {
 }
 
 func newCSVRows(src io.Reader, tagCol string) *csvRows {
-	return &csvRows{src: src, buf: make([]byte, 256<<10), tagCol: tagCol, iTime: -1, iValue: -1, iTag: -1}
+	return &csvRows{src: src, buf: make([]byte, 256<<10), tagCol: tagCol, qAt: -1, iTime: -1, iValue: -1, iTag: -1}
 }
 
 // fill reads more input after buf[w:], compacting or growing buf as needed.
@@ -106,6 +107,7 @@ func (c *csvRows) fill() bool {
 	if c.eof || c.err != nil {
 		return false
 	}
+	c.qAt = -1
 	if c.r > 0 {
 		n := copy(c.buf, c.buf[c.r:c.w])
 		c.r, c.w = 0, n
@@ -448,7 +450,7 @@ const newlines8 = 0x0a0a0a0a0a0a0a0a // '\n'
 // fastRow handles the common record of a usable table in one pass over the
 // buffer: a complete line, without quotes, with the table's number of cells
 // and an empty first cell. It finds the line end and the commas eight bytes
-// at a time and returns the tank, time and value cells (defaults applied).
+// at a time (a line holds no quote when it ends before c.qAt) and returns the tank, time and value cells (defaults applied).
 // For anything else it consumes nothing and returns fast false, leaving the
 // record to the general path.
 func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
@@ -456,19 +458,22 @@ func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
 		return nil, nil, nil, false
 	}
 	b := c.buf[c.r:c.w]
+	if c.qAt < c.r {
+		// Quotes are rare: find the next one once, then lines before it
+		// need no quote test.
+		c.qAt = c.w
+		if i := bytes.IndexByte(b, '"'); i >= 0 {
+			c.qAt = c.r + i
+		}
+	}
 	var pos [maxFastCells]int // comma positions
 	n, end := 0, -1
 	for i := 0; i+8 <= len(b); i += 8 {
 		x := binary.LittleEndian.Uint64(b[i:])
-		qm, cm := eqMask(x, quotes8), eqMask(x, commas8)
+		cm := eqMask(x, commas8)
 		if nm := eqMask(x, newlines8); nm != 0 {
-			below := (nm & -nm) - 1 // the bytes before the first newline
-			qm &= below
-			cm &= below
+			cm &= (nm & -nm) - 1 // the bytes before the first newline
 			end = i + bits.TrailingZeros64(nm)>>3
-		}
-		if qm != 0 {
-			return nil, nil, nil, false
 		}
 		for ; cm != 0; cm &= cm - 1 {
 			if n == len(pos) {
@@ -481,7 +486,7 @@ func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
 			break
 		}
 	}
-	if end < 0 || n+1 != c.ncol || pos[0] != 0 {
+	if end < 0 || c.r+end > c.qAt || n+1 != c.ncol || pos[0] != 0 {
 		return nil, nil, nil, false
 	}
 	lineEnd := end
