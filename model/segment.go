@@ -146,6 +146,7 @@ type Segmenter struct {
 	rt   [5]int64
 	rh   [5]float64
 	rq   [5]float64
+	rk   [5]int64 // fkey of rh
 	rpos int
 	// the two previous accepted samples, for the noise estimate
 	t1, t2   int64
@@ -266,7 +267,8 @@ func (s *Segmenter) Push(timeNs []int64, headM, inflowM3s []float64) {
 	nan := math.NaN()
 	for i, t := range timeNs {
 		h := headM[i]
-		if math.IsNaN(h) || math.IsInf(h, 0) || (s.n > 0 && t <= s.lastT) {
+		// h-h is NaN, not 0, exactly when h is NaN or infinite
+		if h-h != 0 || (s.n > 0 && t <= s.lastT) {
 			s.stats.Invalid++
 			continue
 		}
@@ -285,14 +287,20 @@ func (s *Segmenter) accept(t int64, h, q float64) {
 		s.firstT = t
 	}
 	if s.estimate && n >= 2 && t-s.t1 <= s.gapNs && s.t1-s.t2 <= s.gapNs {
-		if s.noise.add(t, math.Abs(h-2*s.h1+s.h2)) {
+		ad2 := math.Abs(h - 2*s.h1 + s.h2)
+		if e := &s.noise; e.inBlock(t) {
+			// noiseEstimator.add without a call, for the common case
+			if len(e.d2) < noiseBlockCap && ad2 == ad2 {
+				e.d2 = append(e.d2, math.Float64bits(ad2))
+			}
+		} else if e.add(t, ad2) {
 			s.setSigma()
 		}
 	}
 	s.t2, s.h2 = s.t1, s.h1
 	s.t1, s.h1 = t, h
 	p := s.rpos
-	s.rt[p], s.rh[p], s.rq[p] = t, h, q
+	s.rt[p], s.rh[p], s.rq[p], s.rk[p] = t, h, q, fkey(h)
 	if p++; p == 5 {
 		p = 0
 	}
@@ -306,7 +314,8 @@ func (s *Segmenter) accept(t int64, h, q float64) {
 		if j >= 5 {
 			j -= 5
 		}
-		s.emit(n-2, j, med5(s.rh[0], s.rh[1], s.rh[2], s.rh[3], s.rh[4]))
+		med := unkey(med5k(s.rk[0], s.rk[1], s.rk[2], s.rk[3], s.rk[4]))
+		s.emit(n-2, j, med)
 	} else if n >= 2 {
 		s.filter(n-2, n)
 	}
@@ -321,10 +330,14 @@ func (s *Segmenter) accept(t int64, h, q float64) {
 // order-preserving integer keys (see fkey), for which the builtin min and max
 // are single conditional moves; the inputs are never NaN.
 func med5(a, b, c, d, e float64) float64 {
-	ka, kb, kc, kd, ke := fkey(a), fkey(b), fkey(c), fkey(d), fkey(e)
+	return unkey(med5k(fkey(a), fkey(b), fkey(c), fkey(d), fkey(e)))
+}
+
+// med5k is med5 on the keys: the accepted samples keep theirs in the ring.
+func med5k(ka, kb, kc, kd, ke int64) int64 {
 	f := max(min(ka, kb), min(kc, kd))
 	g := min(max(ka, kb), max(kc, kd))
-	return unkey(max(min(ke, f), min(max(ke, f), g)))
+	return max(min(ke, f), min(max(ke, f), g))
 }
 
 // fkey maps a non-NaN float64 to an int64 with the same order (-0 sorts
@@ -380,7 +393,7 @@ func (s *Segmenter) emit(j, p int, med float64) {
 	if s.metered {
 		s.hq = append(s.hq, s.rq[p])
 	}
-	s.step(j)
+	s.step(j, s.rt[p], med)
 	s.done = j + 1
 }
 

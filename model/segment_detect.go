@@ -9,17 +9,24 @@ func (s *Segmenter) tAt(i int) int64    { return s.ht[i-s.base] }
 func (s *Segmenter) yAt(i int) float64  { return s.hy[i-s.base] }
 func (s *Segmenter) spikeAt(i int) bool { return s.hk[i-s.base] }
 
-// step runs the event detector on filtered sample i.
-func (s *Segmenter) step(i int) {
-	t := s.tAt(i)
+// step runs the event detector on filtered sample i at time t, level y.
+func (s *Segmenter) step(i int, t int64, y float64) {
 	if i > 0 && t-s.prevT > s.stallNs {
 		s.breakAt(i)
 	}
 	s.prevT = t
-	y := s.yAt(i)
 	switch s.state {
 	case stQuiet:
-		s.quietStep(i, t, y)
+		// the common case inline: no trigger, nothing to cut
+		w := &s.win
+		w.push(i, t, y)
+		lo := t - s.winNs
+		for w.oldestT() < lo {
+			w.popFront()
+		}
+		if y < w.maxY()-s.trig || y > w.minY()+s.trig || s.metered || i == s.idleStart || t >= s.cutAt {
+			s.quietStep(i, t, y)
+		}
 	case stFall:
 		if y < s.ext {
 			s.ext, s.iExt = y, i
@@ -69,12 +76,10 @@ func (s *Segmenter) step(i int) {
 	}
 }
 
+// quietStep decides filtered sample i in the quiet state, once it is in
+// the window: a fall or rise opens, metered inflow breaks the idle stretch,
+// or the stretch is cut.
 func (s *Segmenter) quietStep(i int, t int64, y float64) {
-	s.win.push(i, t, y)
-	lo := t - s.winNs
-	for s.win.oldestT() < lo {
-		s.win.popFront()
-	}
 	if m := s.win.argMax(); y < s.yAt(m)-s.trig {
 		k := s.kneeDown(m, i)
 		s.beginFall(k, i)

@@ -46,6 +46,12 @@ func floorDiv(a, b int64) int64 {
 	return q
 }
 
+// inBlock reports whether a value at time t goes to the current block
+// after the provisional estimates, where add only appends it.
+func (e *noiseEstimator) inBlock(t int64) bool {
+	return t < e.end && t >= e.start && e.ne != 0
+}
+
 // add records |d2| at time t; it reports whether sigma changed.
 func (e *noiseEstimator) add(t int64, ad2 float64) bool {
 	changed := false
@@ -79,10 +85,10 @@ func (e *noiseEstimator) finish() bool {
 	b := 1.4826 * e.medianBits(e.d2) / math.Sqrt(6)
 	if e.ne == noiseBlocks {
 		// the oldest block leaves the sorted copy
-		i, _ := slices.BinarySearch(e.sorted, e.ests[e.epos])
+		i := rankBelow(e.sorted, e.ests[e.epos])
 		e.sorted = slices.Delete(e.sorted, i, i+1)
 	}
-	i, _ := slices.BinarySearch(e.sorted, b)
+	i := rankBelow(e.sorted, b)
 	e.sorted = slices.Insert(e.sorted, i, b)
 	e.ests[e.epos] = b
 	e.epos = (e.epos + 1) % noiseBlocks
@@ -96,6 +102,17 @@ func (e *noiseEstimator) finish() bool {
 		e.sigma = 0.5 * (e.sorted[k-1] + e.sorted[k])
 	}
 	return true
+}
+
+// rankBelow is the number of values in x below v: for x sorted, the first
+// index at which v is or would be (the block values are never NaN). A
+// count without branches beats a binary search on so few values.
+func rankBelow(x []float64, v float64) int {
+	n := 0
+	for _, u := range x {
+		n += b2i(u < v)
+	}
+	return n
 }
 
 // median returns the median of x, reordering x. NaN for an empty slice.

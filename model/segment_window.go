@@ -108,6 +108,30 @@ func (w *extremes) argMax() int {
 	return w.fArgMax[w.fh]
 }
 
+// maxY is the largest level in the window, the level at argMax; the window
+// must not be empty.
+func (w *extremes) maxY() float64 {
+	if w.fh == len(w.ft) {
+		return w.bMax
+	}
+	if len(w.bt) > 0 && w.bMax >= w.fMax[w.fh] {
+		return w.bMax
+	}
+	return w.fMax[w.fh]
+}
+
+// minY is the smallest level in the window, the level at argMin; the window
+// must not be empty.
+func (w *extremes) minY() float64 {
+	if w.fh == len(w.ft) {
+		return w.bMin
+	}
+	if len(w.bt) > 0 && w.bMin <= w.fMin[w.fh] {
+		return w.bMin
+	}
+	return w.fMin[w.fh]
+}
+
 // argMin is the index of the smallest level in the window (the latest among
 // equal ones); the window must not be empty.
 func (w *extremes) argMin() int {
