@@ -176,7 +176,9 @@ type Segmenter struct {
 	iExt       int
 	mark       float64
 	iMark      int
-	timeoutNs  int64
+	timeoutNs  int64   // stall time after the mark, or its floor while toDirty
+	toSigma    float64 // σ when the mark was set
+	toDirty    bool
 	prevT      int64
 
 	queue         []Segment

@@ -45,7 +45,7 @@ func (s *Segmenter) step(i int, t int64, y float64) {
 			s.beginRise(k, i)
 			return
 		}
-		if t-s.tAt(s.iMark) > s.timeoutNs {
+		if t-s.tAt(s.iMark) > s.timeoutNs && s.stalled(t) {
 			s.closeIdle()
 			s.finishDrain(s.knee, s.iMark, i)
 			s.toQuiet(s.iMark+1, i)
@@ -68,7 +68,7 @@ func (s *Segmenter) step(i int, t int64, y float64) {
 			s.beginFall(k, i)
 			return
 		}
-		if t-s.tAt(s.iMark) > s.timeoutNs {
+		if t-s.tAt(s.iMark) > s.timeoutNs && s.stalled(t) {
 			s.closeIdle()
 			s.finishFill(s.knee, s.iMark)
 			s.toQuiet(s.iMark+1, i)
@@ -225,22 +225,43 @@ func (s *Segmenter) beginRise(k, i int) {
 }
 
 // setTimeout sets the stall time after the last mark:
-// clamp(max(elapsed/4, 4 σ/rate, 5 samples, 2 min), stall cap).
+// clamp(max(elapsed/4, 4 σ/rate, 5 samples, 2 min), stall cap). The marks
+// come with almost every sample of a fall, and the stall time matters only
+// once the quiet time since the mark exceeds its floor min(2 min, stall
+// cap): timeoutNs holds that floor until stalled works out the value, from
+// the σ saved here.
 func (s *Segmenter) setTimeout() {
+	s.toSigma, s.toDirty = s.sigma, true
+	s.timeoutNs = min(int64(120e9), s.stallNs)
+}
+
+// stalled reports whether the fall (rise) has stalled at time t, given
+// that t is more than timeoutNs after the last mark.
+func (s *Segmenter) stalled(t int64) bool {
+	if s.toDirty {
+		s.toDirty = false
+		s.timeoutNs = s.stallTime()
+		return t-s.tAt(s.iMark) > s.timeoutNs
+	}
+	return true
+}
+
+// stallTime is the stall time of setTimeout for the current mark.
+func (s *Segmenter) stallTime() int64 {
 	el := s.tAt(s.iMark) - s.tAt(s.knee)
 	to := max(el/4, int64(120e9))
 	if n := s.iMark - s.knee; n > 0 {
 		to = max(to, 5*(el/int64(n)))
 		if d := math.Abs(s.yAt(s.knee) - s.yAt(s.iMark)); d > 0 {
 			r := d / (float64(el) * 1e-9) // m/s
-			if x := 4 * s.sigma / r * 1e9; x < float64(s.stallNs) {
+			if x := 4 * s.toSigma / r * 1e9; x < float64(s.stallNs) {
 				to = max(to, int64(x))
 			} else {
 				to = s.stallNs
 			}
 		}
 	}
-	s.timeoutNs = min(to, s.stallNs)
+	return min(to, s.stallNs)
 }
 
 func (s *Segmenter) toQuiet(f, i int) {

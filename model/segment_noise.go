@@ -30,6 +30,9 @@ type noiseEstimator struct {
 	next    int // size of the block at which a provisional estimate is made
 	sigma   float64
 	sa, sb  [noiseBlockCap]uint64 // scratch of medianBits
+	// the upper middle value of the last medianBits, its first pivot
+	prevMed  uint64
+	havePrev bool
 }
 
 func (e *noiseEstimator) init() {
@@ -142,12 +145,14 @@ func median(x []float64) float64 {
 // the values do, so the result is the value median gives on the floats:
 // the middle order statistic, or the mean of the two middle ones.
 //
-// Each round splits the candidates around the median of three p into the
-// values < p, written forward from the front of a scratch buffer, and the
-// values > p, written backward from its end, in one pass without
-// data-dependent branches: every value is stored at both write positions
-// and only the position on its side advances, so no store is read back
-// within the pass. The values == p, at least one, are only counted. The
+// Each round splits the candidates around a pivot p (first the last call's
+// median, then the median of three candidates) into the values < p,
+// written forward from the front of a scratch buffer, and the values > p,
+// written backward from its end, in one pass without data-dependent
+// branches: every value is stored at both write positions and only the
+// position on its side advances, so no store is read back within the
+// pass. The values == p are only counted; from the second round on there
+// is at least one, so every round after the first shrinks the range. The
 // two middle ranks k-1 and k are followed together; when they part, the
 // one outside the run of p is the largest (smallest) of its side. Runs of
 // equal values, common with quantised readings, end the search early.
@@ -169,6 +174,11 @@ func (e *noiseEstimator) medianBits(x []uint64) float64 {
 		}
 		a, b, c := src[0], src[m/2], src[m-1]
 		p := max(min(a, b), min(max(a, b), c))
+		if r == 0 && e.havePrev {
+			// the last block's median: with steady noise the middle ranks
+			// are near it, and with quantised readings often equal to it
+			p = e.prevMed
+		}
 		dst := bufs[r&1][:m]
 		lt, gt := 0, m-1
 		for _, v := range src {
@@ -196,6 +206,7 @@ func (e *noiseEstimator) medianBits(x []uint64) float64 {
 		}
 		break
 	}
+	e.prevMed, e.havePrev = vhi, true
 	if n&1 == 1 {
 		return math.Float64frombits(vhi)
 	}
