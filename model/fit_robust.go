@@ -11,7 +11,14 @@ const madScale = 1.482602218505602
 
 // medianInPlace returns the median of x, reordering x (quickselect, O(n)).
 // x must not be empty.
-func medianInPlace(x []float64) float64 {
+func medianInPlace(x []float64) float64 { return medianBuf(x, nil) }
+
+// medianBuf is medianInPlace with scratch: when buf has room for x (its
+// contents are then overwritten), x shorter than bracketMinN goes to the
+// branch-free medianSplit instead of quickselect. Signed zeros compare
+// equal there, so a zero median may come back with either sign; callers
+// pass absolute values, which have no -0.
+func medianBuf(x, buf []float64) float64 {
 	n := len(x)
 	k := n / 2
 	if n >= bracketMinN {
@@ -21,6 +28,10 @@ func medianInPlace(x []float64) float64 {
 			}
 			return 0.5 * (lo + hi)
 		}
+	}
+	if len(buf) >= n {
+		m, _ := medianSplit(x, buf, math.NaN())
+		return m
 	}
 	hi := selectKth(x, k)
 	if n%2 == 1 {
@@ -33,6 +44,92 @@ func medianInPlace(x []float64) float64 {
 		}
 	}
 	return 0.5 * (lo + hi)
+}
+
+// medianSplit returns the median of x (not empty, no NaN): the middle order
+// statistic, or the mean of the two middle ones, the same value as
+// medianInPlace. It also returns the upper middle value, a good first
+// pivot p0 for the next call on similar data (NaN: none). x and buf
+// (len(buf) >= len(x)) are overwritten.
+//
+// Each round splits the candidates around a pivot p (p0 first, then the
+// median of three candidates) into the values < p, written forward from
+// the front of the other buffer, and the values > p, written backward from
+// its end, in one pass without data-dependent branches: every value is
+// stored at both write positions and only the position on its side
+// advances, so no store is read back within the pass (an in-place
+// partition without branches waits on its own stores). The values == p are
+// only counted; with p a candidate there is at least one, so every such
+// round shrinks the range. The two middle ranks are followed together;
+// when they part, the one outside the run of p is the largest (smallest)
+// of its side. Runs of equal values, common with quantised readings, end
+// the search early.
+func medianSplit(x, buf []float64, p0 float64) (med, upper float64) {
+	n := len(x)
+	k := n / 2
+	klo := k
+	if n&1 == 0 {
+		klo = k - 1
+	}
+	src, other := x, buf
+	var vlo, vhi float64
+	for r := 0; ; r++ {
+		m := len(src)
+		if m == 1 {
+			vlo, vhi = src[0], src[0]
+			break
+		}
+		a, b, c := src[0], src[m/2], src[m-1]
+		p := max(min(a, b), min(max(a, b), c))
+		if r == 0 && p0 == p0 {
+			p = p0
+		}
+		dst := other[:m]
+		other = src
+		lt, gt := 0, m-1
+		for _, v := range src {
+			dst[lt] = v
+			dst[gt] = v
+			lt += b2i(v < p)
+			gt -= b2i(v > p)
+		}
+		eq := gt + 1 // values < p are dst[:lt], values > p dst[eq:]
+		switch {
+		case k < lt: // both ranks among the smaller values
+			src = dst[:lt]
+			continue
+		case klo >= eq: // both among the larger
+			src = dst[eq:]
+			klo, k = klo-eq, k-eq
+			continue
+		}
+		vlo, vhi = p, p
+		if klo < lt {
+			vlo = dst[0]
+			for _, v := range dst[1:lt] {
+				vlo = max(vlo, v)
+			}
+		}
+		if k >= eq {
+			vhi = dst[eq]
+			for _, v := range dst[eq+1:] {
+				vhi = min(vhi, v)
+			}
+		}
+		break
+	}
+	if n&1 == 1 {
+		return vhi, vhi
+	}
+	return 0.5 * (vlo + vhi), vhi
+}
+
+// b2i is 1 for true and 0 for false; the compiler makes it a flag move.
+func b2i(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
 }
 
 // bracketMinN is the length from which medianInPlace brackets the median
@@ -198,7 +295,7 @@ func robustLineFit(x, z, w0, w, scratch []float64, out []bool, tukey bool, c, zO
 			abs = append(abs, math.Abs(math.Sqrt(wi)*(z[i]-lf.a-lf.b*x[i])))
 		}
 	}
-	sigma := madScale * medianInPlace(abs)
+	sigma := madScale * medianBuf(abs, w) // w is rewritten below
 	if !(sigma > 0) {
 		// More than half the points sit exactly on the line: use the
 		// classical scale of the rest so that gross errors still show.

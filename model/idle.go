@@ -83,7 +83,7 @@ func FitIdle(t *Tank, seg *Segment) (IdleFit, error) {
 			abs = append(abs, math.Abs(v-lf.a-lf.b*(float64(ts[i]-t0)*1e-9)))
 		}
 	}
-	sigma := madScale * medianInPlace(abs)
+	sigma := madScale * medianBuf(abs, z) // z is rewritten below
 	if !(sigma > 0) {
 		var ss float64
 		for i, v := range ys {

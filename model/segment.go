@@ -293,7 +293,7 @@ func (s *Segmenter) accept(t int64, h, q float64) {
 		if e := &s.noise; e.inBlock(t) {
 			// noiseEstimator.add without a call, for the common case
 			if len(e.d2) < noiseBlockCap && ad2 == ad2 {
-				e.d2 = append(e.d2, math.Float64bits(ad2))
+				e.d2 = append(e.d2, ad2)
 			}
 		} else if e.add(t, ad2) {
 			s.setSigma()

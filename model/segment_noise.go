@@ -22,23 +22,23 @@ type noiseEstimator struct {
 	start   int64 // current block [start, end)
 	end     int64
 	started bool
-	d2      []uint64 // bit patterns of |d2| in the current block (see medianBits)
+	d2      []float64 // |d2| in the current block
 	ests    [noiseBlocks]float64
 	sorted  []float64 // ests[:ne] in ascending order
 	ne      int
 	epos    int
 	next    int // size of the block at which a provisional estimate is made
 	sigma   float64
-	sa, sb  [noiseBlockCap]uint64 // scratch of medianBits
-	// the upper middle value of the last medianBits, its first pivot
-	prevMed  uint64
-	havePrev bool
+	buf     [noiseBlockCap]float64 // scratch of medianSplit
+	prevMed float64                // first pivot for medianSplit
+	tmp     []float64              // copy of d2 for a provisional estimate
 }
 
 func (e *noiseEstimator) init() {
 	e.sigma = noiseDefaultM
+	e.prevMed = math.NaN()
 	e.next = 16
-	e.d2 = make([]uint64, 0, noiseBlockCap)
+	e.d2 = make([]float64, 0, noiseBlockCap)
 }
 
 func floorDiv(a, b int64) int64 {
@@ -70,10 +70,12 @@ func (e *noiseEstimator) add(t int64, ad2 float64) bool {
 		}
 	}
 	if len(e.d2) < noiseBlockCap && !math.IsNaN(ad2) {
-		e.d2 = append(e.d2, math.Float64bits(ad2))
+		e.d2 = append(e.d2, ad2)
 		if e.ne == 0 && len(e.d2) == e.next {
 			e.next *= 2
-			e.sigma = 1.4826 * e.medianBits(e.d2) / math.Sqrt(6)
+			// on a copy: medianSplit overwrites its input
+			e.tmp = append(e.tmp[:0], e.d2...)
+			e.sigma = 1.4826 * e.median(e.tmp) / math.Sqrt(6)
 			changed = true
 		}
 	}
@@ -85,7 +87,7 @@ func (e *noiseEstimator) finish() bool {
 	if len(e.d2) < 5 {
 		return false
 	}
-	b := 1.4826 * e.medianBits(e.d2) / math.Sqrt(6)
+	b := 1.4826 * e.median(e.d2) / math.Sqrt(6)
 	if e.ne == noiseBlocks {
 		// the oldest block leaves the sorted copy
 		i := rankBelow(e.sorted, e.ests[e.epos])
@@ -105,6 +107,14 @@ func (e *noiseEstimator) finish() bool {
 		e.sigma = 0.5 * (e.sorted[k-1] + e.sorted[k])
 	}
 	return true
+}
+
+// median is the median of the block values x (see medianSplit, which
+// overwrites x).
+func (e *noiseEstimator) median(x []float64) float64 {
+	m, up := medianSplit(x, e.buf[:], e.prevMed)
+	e.prevMed = up
+	return m
 }
 
 // rankBelow is the number of values in x below v: for x sorted, the first
@@ -137,85 +147,4 @@ func median(x []float64) float64 {
 		}
 	}
 	return 0.5 * (lo + m)
-}
-
-// medianBits returns the median of the non-negative values whose
-// math.Float64bits patterns are in x (not empty, at most noiseBlockCap),
-// leaving x as it is. For x ≥ +0, NaN excluded, the bit patterns order as
-// the values do, so the result is the value median gives on the floats:
-// the middle order statistic, or the mean of the two middle ones.
-//
-// Each round splits the candidates around a pivot p (first the last call's
-// median, then the median of three candidates) into the values < p,
-// written forward from the front of a scratch buffer, and the values > p,
-// written backward from its end, in one pass without data-dependent
-// branches: every value is stored at both write positions and only the
-// position on its side advances, so no store is read back within the
-// pass. The values == p are only counted; from the second round on there
-// is at least one, so every round after the first shrinks the range. The
-// two middle ranks k-1 and k are followed together; when they part, the
-// one outside the run of p is the largest (smallest) of its side. Runs of
-// equal values, common with quantised readings, end the search early.
-func (e *noiseEstimator) medianBits(x []uint64) float64 {
-	n := len(x)
-	k := n / 2
-	klo := k
-	if n&1 == 0 {
-		klo = k - 1
-	}
-	src := x
-	bufs := [2][]uint64{e.sa[:], e.sb[:]}
-	var vlo, vhi uint64
-	for r := 0; ; r++ {
-		m := len(src)
-		if m == 1 {
-			vlo, vhi = src[0], src[0]
-			break
-		}
-		a, b, c := src[0], src[m/2], src[m-1]
-		p := max(min(a, b), min(max(a, b), c))
-		if r == 0 && e.havePrev {
-			// the last block's median: with steady noise the middle ranks
-			// are near it, and with quantised readings often equal to it
-			p = e.prevMed
-		}
-		dst := bufs[r&1][:m]
-		lt, gt := 0, m-1
-		for _, v := range src {
-			dst[lt] = v
-			dst[gt] = v
-			lt += b2i(v < p)
-			gt -= b2i(v > p)
-		}
-		eq := gt + 1 // values < p are dst[:lt], values > p dst[eq:]
-		switch {
-		case k < lt: // both ranks among the smaller values
-			src = dst[:lt]
-			continue
-		case klo >= eq: // both among the larger
-			src = dst[eq:]
-			klo, k = klo-eq, k-eq
-			continue
-		}
-		vlo, vhi = p, p
-		if klo < lt {
-			vlo = slices.Max(dst[:lt])
-		}
-		if k >= eq {
-			vhi = slices.Min(dst[eq:])
-		}
-		break
-	}
-	e.prevMed, e.havePrev = vhi, true
-	if n&1 == 1 {
-		return math.Float64frombits(vhi)
-	}
-	return 0.5 * (math.Float64frombits(vlo) + math.Float64frombits(vhi))
-}
-
-func b2i(b bool) int {
-	if b {
-		return 1
-	}
-	return 0
 }
