@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
+	"sync"
 	"time"
 
 	"drainsight/detect"
@@ -20,9 +22,17 @@ type influxTank struct {
 	p      *plan
 	run    *tankRun
 	fromNs int64
-	buf    model.Series
+	lastNs int64 // newest sample pulled (the pull goroutine's own)
 	out    tankOutcome
 	failed bool
+}
+
+// pulledWindow is one window's samples per tank, or the error that stopped it.
+type pulledWindow struct {
+	wi   int
+	w    [2]int64
+	bufs map[string]*model.Series
+	err  error
 }
 
 // scanInflux pulls each site's tanks window by window (one query per
@@ -94,62 +104,94 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	// evaluation instants; samples before a tank's own start are dropped.
 	startNs -= ((startNs % int64(evalEvery)) + int64(evalEvery)) % int64(evalEvery)
 	windows := influx.Windows(startNs, untilNs, ix.QueryWindow)
-	for wi, w := range windows {
-		if len(ids) == 0 || ctx.Err() != nil {
-			break
+
+	// Pipeline: one goroutine pulls window after window (one query each)
+	// while the tanks of the previous window are segmented, fitted and
+	// committed, a few tanks at a time. At most two windows are in memory.
+	pctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	ch := make(chan pulledWindow, 1)
+	pullIDs := slices.Clone(ids)
+	go func() {
+		defer close(ch)
+		for wi, w := range windows {
+			if len(pullIDs) == 0 || pctx.Err() != nil {
+				return
+			}
+			pw := pulledWindow{wi: wi, w: w, bufs: make(map[string]*model.Series, len(pullIDs))}
+			_, pw.err = src.Pull(pctx, pullIDs, w[0], w[1], func(tank string, tNs int64, v float64) {
+				t := byID[tank]
+				if t == nil || tNs < t.fromNs || tNs <= t.lastNs {
+					return
+				}
+				h := t.p.conv.Sensor.HeadM(v, t.p.conv.OutletElevM)
+				if math.IsNaN(h) {
+					return
+				}
+				t.lastNs = tNs
+				b := pw.bufs[tank]
+				if b == nil {
+					b = &model.Series{Tank: tank}
+					pw.bufs[tank] = b
+				}
+				b.Append(tNs, h)
+			})
+			select {
+			case ch <- pw:
+			case <-pctx.Done():
+				return
+			}
+			if pw.err != nil {
+				return
+			}
 		}
-		_, err := src.Pull(ctx, ids, w[0], w[1], func(tank string, tNs int64, v float64) {
-			t := byID[tank]
-			if t == nil || tNs < t.fromNs {
-				return
-			}
-			h := t.p.conv.Sensor.HeadM(v, t.p.conv.OutletElevM)
-			if n := t.buf.Len(); n > 0 && tNs <= t.buf.TimeNs[n-1] || math.IsNaN(h) {
-				return
-			}
-			t.buf.Append(tNs, h)
-		})
-		if err != nil {
+	}()
+	sem := make(chan struct{}, max(1, j.workers))
+	for pw := range ch {
+		w, wi := pw.w, pw.wi
+		if pw.err != nil {
 			// The window failed: nothing of it is committed; every tank of
 			// the site keeps its checkpoint and reports the error.
-			for _, id := range ids {
-				t := byID[id]
-				t.out.err, t.failed = fmt.Errorf("window %s: %w", time.Unix(0, w[0]).UTC().Format(time.RFC3339), err), true
-			}
-			break
-		}
-		for _, id := range ids {
-			t := byID[id]
-			t.buf.Tank = id
-			t.run.push(&t.buf)
-			t.buf = model.Series{}
-			final := wi == len(windows)-1
-			fits, err := t.run.commit(final, now.UnixNano())
-			if err != nil {
-				t.out.err, t.failed = err, true
-				continue
-			}
-			t.out.fits = append(t.out.fits, fits...)
-			if len(fits) > 0 {
-				if err := c.WriteFits(ctx, ix.FitsMeasurement, fits, siteID); err != nil {
-					j.log.Warn("fit write-back failed", "tank", id, "err", err)
+			for _, t := range tanks {
+				if !t.failed {
+					t.out.err, t.failed = fmt.Errorf("window %s: %w", time.Unix(0, w[0]).UTC().Format(time.RFC3339), pw.err), true
 				}
 			}
+			cancel()
+			break
 		}
-		ids = ids[:0]
+		final := wi == len(windows)-1
+		var wg sync.WaitGroup
 		for _, t := range tanks {
-			if !t.failed {
-				ids = append(ids, t.p.cfg.ID)
+			if t.failed {
+				continue
 			}
-		}
-		if end := w[1]; end < now.UnixNano() && wi < len(windows)-1 {
-			for _, t := range tanks {
-				if !t.failed && end > t.run.prevEvalNs && end%int64(evalEvery) == 0 {
+			wg.Add(1)
+			sem <- struct{}{}
+			go func(t *influxTank, buf *model.Series) {
+				defer wg.Done()
+				defer func() { <-sem }()
+				if buf != nil {
+					t.run.push(buf)
+				}
+				fits, err := t.run.commit(final, now.UnixNano())
+				if err != nil {
+					t.out.err, t.failed = err, true
+					return
+				}
+				t.out.fits = append(t.out.fits, fits...)
+				if len(fits) > 0 {
+					if err := c.WriteFits(ctx, ix.FitsMeasurement, fits, siteID); err != nil {
+						j.log.Warn("fit write-back failed", "tank", t.p.cfg.ID, "err", err)
+					}
+				}
+				if end := w[1]; end < now.UnixNano() && !final && end > t.run.prevEvalNs && end%int64(evalEvery) == 0 {
 					at := time.Unix(0, end).UTC()
 					t.out.evals = append(t.out.evals, evaluation{at: at, findings: t.run.det.Evaluate(at, t.p.detOpt)})
 				}
-			}
+			}(t, pw.bufs[t.p.cfg.ID])
 		}
+		wg.Wait()
 		if opt.progress != nil {
 			opt.progress(wi+1, len(windows), siteID)
 		}
