@@ -227,7 +227,11 @@ func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
 }
 
 // Stats returns the counters so far.
-func (s *Segmenter) Stats() SegmentStats { return s.stats }
+func (s *Segmenter) Stats() SegmentStats {
+	st := s.stats
+	st.Samples = s.n
+	return st
+}
 
 // NoiseM returns the noise level σ in use (m).
 func (s *Segmenter) NoiseM() float64 { return s.sigma }
@@ -278,52 +282,48 @@ func (s *Segmenter) Push(timeNs []int64, headM, inflowM3s []float64) {
 		if s.metered && inflowM3s != nil {
 			q = inflowM3s[i]
 		}
-		s.accept(t, h, q)
+		// accept (t, h, q): the noise estimate, the ring of the last five
+		// samples, and the filtered sample two back
+		n := s.n
+		if n == 0 {
+			s.firstT = t
+		}
+		if s.estimate && n >= 2 && t-s.t1 <= s.gapNs && s.t1-s.t2 <= s.gapNs {
+			ad2 := math.Abs(h - 2*s.h1 + s.h2)
+			if e := &s.noise; e.inBlock(t) {
+				// noiseEstimator.add without a call, for the common case
+				if len(e.d2) < noiseBlockCap && ad2 == ad2 {
+					e.d2 = append(e.d2, ad2)
+				}
+			} else if e.add(t, ad2) {
+				s.setSigma()
+			}
+		}
+		s.t2, s.h2 = s.t1, s.h1
+		s.t1, s.h1 = t, h
+		p := s.rpos
+		s.rt[p], s.rh[p], s.rq[p], s.rk[p] = t, h, q, fkey(h)
+		if p++; p == 5 {
+			p = 0
+		}
+		s.rpos = p
+		s.n = n + 1
+		s.lastT = t
+		if n >= 4 {
+			// p is now the slot of sample n-4; sample n-2 sits two slots on
+			j := p + 2
+			if j >= 5 {
+				j -= 5
+			}
+			s.emit(n-2, j, unkey(med5k(s.rk[0], s.rk[1], s.rk[2], s.rk[3], s.rk[4])))
+		} else if n >= 2 {
+			s.filter(n-2, n)
+		}
+		if n&4095 == 4095 {
+			s.compact()
+		}
 	}
 	s.compact()
-}
-
-func (s *Segmenter) accept(t int64, h, q float64) {
-	n := s.n
-	if n == 0 {
-		s.firstT = t
-	}
-	if s.estimate && n >= 2 && t-s.t1 <= s.gapNs && s.t1-s.t2 <= s.gapNs {
-		ad2 := math.Abs(h - 2*s.h1 + s.h2)
-		if e := &s.noise; e.inBlock(t) {
-			// noiseEstimator.add without a call, for the common case
-			if len(e.d2) < noiseBlockCap && ad2 == ad2 {
-				e.d2 = append(e.d2, ad2)
-			}
-		} else if e.add(t, ad2) {
-			s.setSigma()
-		}
-	}
-	s.t2, s.h2 = s.t1, s.h1
-	s.t1, s.h1 = t, h
-	p := s.rpos
-	s.rt[p], s.rh[p], s.rq[p], s.rk[p] = t, h, q, fkey(h)
-	if p++; p == 5 {
-		p = 0
-	}
-	s.rpos = p
-	s.n = n + 1
-	s.lastT = t
-	s.stats.Samples++
-	if n >= 4 {
-		// p is now the slot of sample n-4; sample n-2 sits two slots on
-		j := p + 2
-		if j >= 5 {
-			j -= 5
-		}
-		med := unkey(med5k(s.rk[0], s.rk[1], s.rk[2], s.rk[3], s.rk[4]))
-		s.emit(n-2, j, med)
-	} else if n >= 2 {
-		s.filter(n-2, n)
-	}
-	if n&4095 == 4095 {
-		s.compact()
-	}
 }
 
 // med5 is the median of five values without data-dependent branches: f and
@@ -381,21 +381,40 @@ func (s *Segmenter) filter(j, hi int) {
 }
 
 // emit appends filtered sample j (ring slot p, window median med) to the
-// history and runs the detector on it.
+// history and runs the event detector on it: a long gap ends whatever was
+// under way; in the quiet state the window extremes are updated here, and
+// quietStep is called only when a fall or rise opens, metered inflow
+// breaks the idle stretch or it is cut; step follows a fall or rise.
 func (s *Segmenter) emit(j, p int, med float64) {
-	raw := s.rh[p]
+	raw, t := s.rh[p], s.rt[p]
 	spike := math.Abs(raw-med) > s.hthr
 	if spike {
 		s.stats.Spikes++
 	}
-	s.ht = append(s.ht, s.rt[p])
+	s.ht = append(s.ht, t)
 	s.hr = append(s.hr, raw)
 	s.hy = append(s.hy, med)
 	s.hk = append(s.hk, spike)
 	if s.metered {
 		s.hq = append(s.hq, s.rq[p])
 	}
-	s.step(j, s.rt[p], med)
+	if j > 0 && t-s.prevT > s.stallNs {
+		s.breakAt(j)
+	}
+	s.prevT = t
+	if s.state == stQuiet {
+		w := &s.win
+		w.push(j, t, med)
+		lo := t - s.winNs
+		for w.oldestT() < lo {
+			w.popFront()
+		}
+		if med < w.maxY()-s.trig || med > w.minY()+s.trig || s.metered || j == s.idleStart || t >= s.cutAt {
+			s.quietStep(j, t, med)
+		}
+	} else {
+		s.step(j, t, med)
+	}
 	s.done = j + 1
 }
 

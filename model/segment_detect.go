@@ -9,24 +9,10 @@ func (s *Segmenter) tAt(i int) int64    { return s.ht[i-s.base] }
 func (s *Segmenter) yAt(i int) float64  { return s.hy[i-s.base] }
 func (s *Segmenter) spikeAt(i int) bool { return s.hk[i-s.base] }
 
-// step runs the event detector on filtered sample i at time t, level y.
+// step follows a fall or rise with filtered sample i at time t, level y
+// (emit handles the quiet state).
 func (s *Segmenter) step(i int, t int64, y float64) {
-	if i > 0 && t-s.prevT > s.stallNs {
-		s.breakAt(i)
-	}
-	s.prevT = t
 	switch s.state {
-	case stQuiet:
-		// the common case inline: no trigger, nothing to cut
-		w := &s.win
-		w.push(i, t, y)
-		lo := t - s.winNs
-		for w.oldestT() < lo {
-			w.popFront()
-		}
-		if y < w.maxY()-s.trig || y > w.minY()+s.trig || s.metered || i == s.idleStart || t >= s.cutAt {
-			s.quietStep(i, t, y)
-		}
 	case stFall:
 		if y < s.ext {
 			s.ext, s.iExt = y, i

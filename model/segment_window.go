@@ -74,7 +74,7 @@ func (w *extremes) popFront() {
 func (w *extremes) transfer() {
 	n := len(w.bt)
 	w.fStart, w.fh = w.bStart, 0
-	w.ft = append(w.ft[:0], w.bt...)
+	w.ft, w.bt = w.bt, w.ft // the back's times become the front's; bt is emptied below
 	w.fMax = grow(w.fMax, n)
 	w.fMin = grow(w.fMin, n)
 	w.fArgMax = growInt(w.fArgMax, n)
