@@ -302,19 +302,49 @@ type Conversion struct {
 //
 // An error is returned for a pattern that matches no file, an invalid
 // Conversion, or any error of ReadFile; the Report holds what was read so far.
+// ReadSeries holds every sample read; StreamSeries does not.
 func ReadSeries(ctx context.Context, patterns []string, format Format, opt ReadOptions, conv map[string]Conversion) (map[string]*model.Series, Report, error) {
+	out := map[string]*model.Series{}
+	rep, err := StreamSeries(ctx, patterns, format, opt, conv, 1<<16, func(c *model.Series) {
+		s := out[c.Tank]
+		if s == nil {
+			s = &model.Series{Tank: c.Tank}
+			out[c.Tank] = s
+		}
+		s.TimeNs = append(s.TimeNs, c.TimeNs...)
+		s.HeadM = append(s.HeadM, c.HeadM...)
+		if c.InflowM3s != nil {
+			s.InflowM3s = append(s.InflowM3s, c.InflowM3s...)
+		}
+	})
+	if err != nil && len(out) == 0 && rep.Files == 0 {
+		return nil, rep, err
+	}
+	return out, rep, err
+}
+
+// StreamSeries reads like ReadSeries but hands each tank's samples to emit in
+// chunks of at most chunk samples (in time order per tank; the chunks of
+// different tanks interleave as the files do), so memory does not grow with
+// the length of the files. A chunk and its slices are emit's to keep.
+// Every tank's last chunk is emitted at the end, also when an error stops
+// the read part-way.
+func StreamSeries(ctx context.Context, patterns []string, format Format, opt ReadOptions, conv map[string]Conversion, chunk int, emit func(*model.Series)) (Report, error) {
 	var rep Report
 	for tank, c := range conv {
 		if err := c.Sensor.Validate(); err != nil {
-			return nil, rep, fmt.Errorf("ingest: tank %q: %w", tank, err)
+			return rep, fmt.Errorf("ingest: tank %q: %w", tank, err)
 		}
 		if math.IsNaN(c.OutletElevM) || math.IsInf(c.OutletElevM, 0) || c.InflowToSI < 0 {
-			return nil, rep, fmt.Errorf("ingest: tank %q: outlet elevation must be finite and inflow factor non-negative", tank)
+			return rep, fmt.Errorf("ingest: tank %q: outlet elevation must be finite and inflow factor non-negative", tank)
 		}
+	}
+	if chunk < 1 {
+		chunk = 1
 	}
 	paths, err := expand(patterns)
 	if err != nil {
-		return nil, rep, err
+		return rep, err
 	}
 	known := make(map[string]bool, len(conv))
 	for tank := range conv {
@@ -328,61 +358,82 @@ func ReadSeries(ctx context.Context, patterns []string, format Format, opt ReadO
 		opt.OnInflow = func(tank string, tNs int64, v float64) {
 			f := flows[tank]
 			if f == nil {
-				f = &meterReadings{}
+				f = &meterReadings{last: math.NaN()}
 				flows[tank] = f
 			}
 			f.t = append(f.t, tNs)
 			f.v = append(f.v, v*conv[tank].InflowToSI)
 		}
 	}
-	out := map[string]*model.Series{}
-	ord := newOrder()
+	bufs := map[string]*model.Series{}
+	var order []string
+	flush := func(s *model.Series) {
+		if s.Len() == 0 {
+			return
+		}
+		if opt.InflowField != "" && conv[s.Tank].InflowToSI > 0 {
+			f := flows[s.Tank]
+			if f == nil {
+				f = &meterReadings{last: math.NaN()}
+				flows[s.Tank] = f
+			}
+			s.InflowM3s = f.hold(s.TimeNs)
+		}
+		emit(s)
+	}
 	sink := func(tank string, tNs int64, v float64) {
-		s := out[tank]
+		s := bufs[tank]
 		if s == nil {
 			s = &model.Series{Tank: tank}
-			out[tank] = s
+			bufs[tank] = s
+			order = append(order, tank)
+		}
+		// Emit before appending, so that the inflow reading of the last
+		// line in the chunk has been delivered.
+		if s.Len() >= chunk {
+			flush(s)
+			s = &model.Series{Tank: tank, TimeNs: make([]int64, 0, chunk), HeadM: make([]float64, 0, chunk)}
+			bufs[tank] = s
 		}
 		c := conv[tank]
 		s.Append(tNs, c.Sensor.HeadM(v, c.OutletElevM))
 	}
+	ord := newOrder()
 	for _, p := range paths {
-		r, err := readFile(ctx, p, format, opt, ord, sink)
+		var r Report
+		r, err = readFile(ctx, p, format, opt, ord, sink)
 		rep.Merge(r)
 		if err != nil {
-			return out, rep, err
+			break
 		}
 	}
-	if opt.InflowField != "" {
-		for tank, s := range out {
-			if conv[tank].InflowToSI > 0 {
-				s.InflowM3s = holdInflow(s.TimeNs, flows[tank])
-			}
-		}
+	for _, tank := range order {
+		flush(bufs[tank])
 	}
-	return out, rep, nil
+	return rep, err
 }
 
-// meterReadings are one tank's inflow readings in m^3/s.
+// meterReadings are one tank's inflow readings in m^3/s not yet applied,
+// and the last one applied.
 type meterReadings struct {
-	t []int64
-	v []float64
+	t    []int64
+	v    []float64
+	last float64 // NaN before the first reading
 }
 
-// holdInflow samples the meter's readings at times by sample-and-hold.
-func holdInflow(times []int64, f *meterReadings) []float64 {
+// hold samples the meter at times by sample-and-hold and drops the readings
+// it has passed, keeping the last one for the next chunk.
+func (f *meterReadings) hold(times []int64) []float64 {
 	out := make([]float64, len(times))
-	j := -1
+	j := 0
 	for i, t := range times {
-		for f != nil && j+1 < len(f.t) && f.t[j+1] <= t {
+		for j < len(f.t) && f.t[j] <= t {
+			f.last = f.v[j]
 			j++
 		}
-		if j < 0 {
-			out[i] = math.NaN()
-		} else {
-			out[i] = f.v[j]
-		}
+		out[i] = f.last
 	}
+	f.t, f.v = f.t[j:], f.v[j:]
 	return out
 }
 

@@ -94,15 +94,13 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		}
 		if !t.failed {
 			t.fromNs = from
+			run.fromNs, run.limitNs = from, now.UnixNano()
 			startNs = min(startNs, from)
 			ids = append(ids, p.cfg.ID)
 			byID[p.cfg.ID] = t
 		}
 		tanks = append(tanks, t)
 	}
-	// Windows start at a UTC midnight so that their ends meet the daily
-	// evaluation instants; samples before a tank's own start are dropped.
-	startNs -= ((startNs % int64(evalEvery)) + int64(evalEvery)) % int64(evalEvery)
 	windows := influx.Windows(startNs, untilNs, ix.QueryWindow)
 
 	// Pipeline: one goroutine pulls window after window (one query each)
@@ -172,7 +170,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				defer wg.Done()
 				defer func() { <-sem }()
 				if buf != nil {
-					t.run.push(buf)
+					t.run.feed(buf)
 				}
 				fits, err := t.run.commit(final, now.UnixNano())
 				if err != nil {
@@ -184,10 +182,6 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 					if err := c.WriteFits(ctx, ix.FitsMeasurement, fits, siteID); err != nil {
 						j.log.Warn("fit write-back failed", "tank", t.p.cfg.ID, "err", err)
 					}
-				}
-				if end := w[1]; end < now.UnixNano() && !final && end > t.run.prevEvalNs && end%int64(evalEvery) == 0 {
-					at := time.Unix(0, end).UTC()
-					t.out.evals = append(t.out.evals, evaluation{at: at, findings: t.run.det.Evaluate(at, t.p.detOpt)})
 				}
 			}(t, pw.bufs[t.p.cfg.ID])
 		}
@@ -202,7 +196,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			t.out.samples, t.out.drains, t.out.reset = t.run.total, t.run.drains, t.run.maintChanged
 		}
 		if t.out.err == nil && t.run != nil {
-			t.out.evals = append(t.out.evals, evaluation{at: now, findings: t.run.det.Evaluate(now, t.p.detOpt)})
+			t.out.evals = append(t.run.evals, evaluation{at: now, findings: t.run.det.Evaluate(now, t.p.detOpt)})
 			j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, t.out.findings())
 		}
 		outs = append(outs, t.out)

@@ -6,8 +6,8 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"math"
 	"slices"
-	"sort"
 	"strings"
 	"sync"
 	"time"
@@ -174,28 +174,10 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 			fileTanks = append(fileTanks, p)
 		}
 	}
-	series, rep, readErrs := j.readFiles(ctx, fileTanks)
-	res.ingest = rep
-	if rep.Problems() > 0 {
-		j.log.Warn("input problems", "count", rep.Problems(), "detail", strings.TrimSpace(rep.String()))
-	}
 	now := opt.now
-	if now.IsZero() {
-		if len(influxTanks) > 0 {
-			now = time.Now().UTC()
-		} else {
-			for _, s := range series {
-				if n := s.Len(); n > 0 && s.TimeNs[n-1] > now.UnixNano() {
-					now = time.Unix(0, s.TimeNs[n-1]).UTC()
-				}
-			}
-			if now.IsZero() {
-				now = time.Now().UTC()
-			}
-		}
+	if now.IsZero() && len(influxTanks) > 0 {
+		now = time.Now().UTC()
 	}
-	res.now = now
-
 	var mu sync.Mutex
 	outcomes := make([]tankOutcome, 0, len(j.plans))
 	record := func(o tankOutcome) {
@@ -210,24 +192,22 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 			opt.progress(done, len(j.plans), o.tank)
 		}
 	}
-
-	// File tanks: bounded worker pool, one goroutine per tank at a time.
-	sem := make(chan struct{}, max(1, j.workers))
-	var wg sync.WaitGroup
-	for _, p := range fileTanks {
-		if err := readErrs[p.cfg.ID]; err != nil {
-			record(tankOutcome{tank: p.cfg.ID, err: err})
-			continue
-		}
-		wg.Add(1)
-		sem <- struct{}{}
-		go func(p *plan) {
-			defer wg.Done()
-			defer func() { <-sem }()
-			record(j.scanSeries(p, series[p.cfg.ID], now))
-		}(p)
+	fileOuts, rep, newest := j.scanFiles(ctx, fileTanks, now)
+	res.ingest = rep
+	if rep.Problems() > 0 {
+		j.log.Warn("input problems", "count", rep.Problems(), "detail", strings.TrimSpace(rep.String()))
 	}
-	wg.Wait()
+	if now.IsZero() {
+		// Files: evaluate at the newest sample of the plant.
+		now = newest
+		if now.IsZero() {
+			now = time.Now().UTC()
+		}
+	}
+	res.now = now
+	for _, f := range fileOuts {
+		record(f.finish(now))
+	}
 	for _, o := range j.scanInflux(ctx, influxTanks, now, opt) {
 		record(o)
 	}
@@ -241,19 +221,59 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	return res, err
 }
 
-// readFiles reads every file source once, grouped by identical source
-// settings, and returns the series per tank, the merged report and the read
-// error of each tank whose group failed.
-func (j *job) readFiles(ctx context.Context, plans []*plan) (map[string]*model.Series, ingest.Report, map[string]error) {
+// fileTank is one file tank during a pass.
+type fileTank struct {
+	run *tankRun
+	out tankOutcome
+}
+
+// finish commits the tank (unless it failed) and evaluates it at now.
+func (f *fileTank) finish(now time.Time) tankOutcome {
+	o := f.out
+	if o.err != nil || f.run == nil {
+		return o
+	}
+	o.samples, o.drains, o.reset = f.run.total, f.run.drains, f.run.maintChanged
+	o.fits, o.err = f.run.commit(true, now.UnixNano())
+	if o.err == nil {
+		o.evals = append(f.run.evals, evaluation{at: now, findings: f.run.det.Evaluate(now, f.run.p.detOpt)})
+	}
+	return o
+}
+
+// fileChunk is how many samples of one tank the file reader hands on at a
+// time: memory stays bounded whatever the length of the files.
+const fileChunk = 1 << 15
+
+// scanFiles reads every file source once, grouped by identical source
+// settings, streaming each tank's samples into its run. It returns the tanks
+// (not yet committed), the merged report and the time of the newest sample.
+// A tank whose files fail to read is marked failed and nothing of it is
+// committed.
+func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*fileTank, ingest.Report, time.Time) {
 	type group struct {
 		src         config.Source
 		inflowField string
 		conv        map[string]ingest.Conversion
-		tanks       []string
+		tanks       []*fileTank
 	}
 	groups := map[string]*group{}
 	var order []string
+	var all []*fileTank
+	limit := int64(math.MaxInt64)
+	if !now.IsZero() {
+		limit = now.UnixNano()
+	}
 	for _, p := range plans {
+		ft := &fileTank{out: tankOutcome{tank: p.cfg.ID}}
+		all = append(all, ft)
+		run, from, err := openTankRun(j.st, p, j.log)
+		if err != nil {
+			ft.out.err = err
+			continue
+		}
+		run.fromNs, run.limitNs = from, limit
+		ft.run = run
 		s := p.cfg.Source
 		inflowField := ""
 		if p.cfg.Sensor.Inflow != nil {
@@ -267,70 +287,46 @@ func (j *job) readFiles(ctx context.Context, plans []*plan) (map[string]*model.S
 			order = append(order, key)
 		}
 		g.conv[p.cfg.ID] = p.conv
-		g.tanks = append(g.tanks, p.cfg.ID)
+		g.tanks = append(g.tanks, ft)
 	}
-	all := map[string]*model.Series{}
-	errs := map[string]error{}
 	var rep ingest.Report
+	var newest int64
 	for _, key := range order {
 		g := groups[key]
+		byID := make(map[string]*fileTank, len(g.tanks))
+		for _, ft := range g.tanks {
+			byID[ft.out.tank] = ft
+		}
 		format, err := ingest.ParseFormat(g.src.Format)
 		if err == nil {
 			var prec ingest.Precision
 			prec, err = ingest.ParsePrecision(g.src.Precision)
 			if err == nil {
-				opt := ingest.ReadOptions{Precision: prec, Measurement: g.src.Measurement, Field: g.src.Field, TankTag: g.src.TankTag, InflowField: g.inflowField}
-				var got map[string]*model.Series
+				opt := ingest.ReadOptions{Precision: prec, Measurement: g.src.Measurement, Field: g.src.Field,
+					TankTag: g.src.TankTag, InflowField: g.inflowField}
 				var r ingest.Report
-				got, r, err = ingest.ReadSeries(ctx, g.src.Paths, format, opt, g.conv)
+				r, err = ingest.StreamSeries(ctx, g.src.Paths, format, opt, g.conv, fileChunk, func(c *model.Series) {
+					if n := c.Len(); n > 0 {
+						newest = max(newest, c.TimeNs[n-1])
+					}
+					if ft := byID[c.Tank]; ft != nil {
+						ft.run.feed(c)
+					}
+				})
 				rep.Merge(r)
-				for k, v := range got {
-					all[k] = v
-				}
 			}
 		}
 		if err != nil {
-			for _, t := range g.tanks {
-				errs[t] = err
+			for _, ft := range g.tanks {
+				ft.out.err = err
 			}
 		}
 	}
-	return all, rep, errs
-}
-
-// scanSeries carries one file tank through the pass.
-func (j *job) scanSeries(p *plan, s *model.Series, now time.Time) tankOutcome {
-	o := tankOutcome{tank: p.cfg.ID}
-	r, from, err := openTankRun(j.st, p, j.log)
-	if err != nil {
-		o.err = err
-		return o
+	var newestT time.Time
+	if newest != 0 {
+		newestT = time.Unix(0, newest).UTC()
 	}
-	if s != nil {
-		// Push a day at a time and evaluate at each midnight that the
-		// previous pass did not evaluate.
-		i, _ := slices.BinarySearch(s.TimeNs, from)
-		for i < s.Len() {
-			cut := nextEval(s.TimeNs[i])
-			j := i + sort.Search(s.Len()-i, func(k int) bool { return s.TimeNs[i+k] >= cut })
-			part := &model.Series{Tank: s.Tank, TimeNs: s.TimeNs[i:j], HeadM: s.HeadM[i:j]}
-			if s.InflowM3s != nil {
-				part.InflowM3s = s.InflowM3s[i:j]
-			}
-			r.push(part)
-			i = j
-			if i < s.Len() && cut < now.UnixNano() && cut > r.prevEvalNs {
-				at := time.Unix(0, cut).UTC()
-				o.evals = append(o.evals, evaluation{at: at, findings: r.det.Evaluate(at, p.detOpt)})
-			}
-		}
-	}
-	o.samples, o.drains, o.reset = r.total, r.drains, r.maintChanged
-	o.fits, o.err = r.commit(true, now.UnixNano())
-	if o.err == nil {
-		o.evals = append(o.evals, evaluation{at: now, findings: r.det.Evaluate(now, p.detOpt)})
-	}
-	return o
+	return all, rep, newestT
 }
 
 // updateAlerts runs the alert lifecycle over every evaluation of the pass

@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"sort"
 	"strconv"
 	"strings"
 	"time"
@@ -74,6 +75,14 @@ type tankRun struct {
 	// maintChanged is set when maintenance records were added or removed
 	// since the previous pass: the baseline restarted.
 	maintChanged bool
+	// fromNs: samples before it are not pushed (the previous pass has them).
+	fromNs int64
+	// limitNs: no evaluation at or after it (the pass's --now).
+	limitNs int64
+	// cutNs is the next daily evaluation instant after the last sample
+	// pushed (0 before the first).
+	cutNs int64
+	evals []evaluation
 }
 
 // openTankRun loads the tank's checkpoint and detector state (replaying the
@@ -175,6 +184,35 @@ func maintenanceFingerprint(recs []store.Maintenance) string {
 		b.WriteByte(';')
 	}
 	return b.String()
+}
+
+// feed pushes samples (time order, any chunking) and evaluates the
+// statistics at every UTC midnight the data cross that the previous pass did
+// not evaluate, with the data before the midnight only.
+func (r *tankRun) feed(s *model.Series) {
+	i, n := 0, s.Len()
+	for i < n && s.TimeNs[i] < r.fromNs {
+		i++
+	}
+	for i < n {
+		if r.cutNs != 0 && s.TimeNs[i] >= r.cutNs {
+			if cut := r.cutNs; cut > r.prevEvalNs && cut < r.limitNs {
+				at := time.Unix(0, cut).UTC()
+				r.evals = append(r.evals, evaluation{at: at, findings: r.det.Evaluate(at, r.p.detOpt)})
+			}
+			r.cutNs = 0
+		}
+		if r.cutNs == 0 {
+			r.cutNs = nextEval(s.TimeNs[i])
+		}
+		j := i + sort.Search(n-i, func(k int) bool { return s.TimeNs[i+k] >= r.cutNs })
+		part := &model.Series{Tank: s.Tank, TimeNs: s.TimeNs[i:j], HeadM: s.HeadM[i:j]}
+		if s.InflowM3s != nil {
+			part.InflowM3s = s.InflowM3s[i:j]
+		}
+		r.push(part)
+		i = j
+	}
 }
 
 // push feeds samples (time order) into the sensor checks and the segmenter,
