@@ -22,7 +22,7 @@ func medianBuf(x, buf []float64) float64 {
 	n := len(x)
 	k := n / 2
 	if n >= bracketMinN {
-		if lo, hi, ok := bracketMedian(x); ok {
+		if lo, hi, ok := bracketMedian(x, buf); ok {
 			if n%2 == 1 {
 				return hi
 			}
@@ -51,6 +51,23 @@ func medianBuf(x, buf []float64) float64 {
 // medianInPlace. It also returns the upper middle value, a good first
 // pivot p0 for the next call on similar data (NaN: none). x and buf
 // (len(buf) >= len(x)) are overwritten.
+func medianSplit(x, buf []float64, p0 float64) (med, upper float64) {
+	n := len(x)
+	k := n / 2
+	klo := k
+	if n&1 == 0 {
+		klo = k - 1
+	}
+	lo, hi := selectPair(x, buf, klo, k, p0)
+	if n&1 == 1 {
+		return hi, hi
+	}
+	return 0.5 * (lo + hi), hi
+}
+
+// selectPair returns the order statistics klo and k of x (0-based, k = klo
+// or klo+1; x not empty, no NaN), overwriting x and buf (len(buf) >=
+// len(x)); p0 is the first pivot (NaN: none).
 //
 // Each round splits the candidates around a pivot p (p0 first, then the
 // median of three candidates) into the values < p, written forward from
@@ -60,24 +77,16 @@ func medianBuf(x, buf []float64) float64 {
 // advances, so no store is read back within the pass (an in-place
 // partition without branches waits on its own stores). The values == p are
 // only counted; with p a candidate there is at least one, so every such
-// round shrinks the range. The two middle ranks are followed together;
-// when they part, the one outside the run of p is the largest (smallest)
-// of its side. Runs of equal values, common with quantised readings, end
-// the search early.
-func medianSplit(x, buf []float64, p0 float64) (med, upper float64) {
-	n := len(x)
-	k := n / 2
-	klo := k
-	if n&1 == 0 {
-		klo = k - 1
-	}
+// round shrinks the range. The two ranks are followed together; when they
+// part, the one outside the run of p is the largest (smallest) of its
+// side. Runs of equal values, common with quantised readings, end the
+// search early. Signed zeros compare equal.
+func selectPair(x, buf []float64, klo, k int, p0 float64) (vlo, vhi float64) {
 	src, other := x, buf
-	var vlo, vhi float64
 	for r := 0; ; r++ {
 		m := len(src)
 		if m == 1 {
-			vlo, vhi = src[0], src[0]
-			break
+			return src[0], src[0]
 		}
 		a, b, c := src[0], src[m/2], src[m-1]
 		p := max(min(a, b), min(max(a, b), c))
@@ -116,12 +125,8 @@ func medianSplit(x, buf []float64, p0 float64) (med, upper float64) {
 				vhi = min(vhi, v)
 			}
 		}
-		break
+		return vlo, vhi
 	}
-	if n&1 == 1 {
-		return vhi, vhi
-	}
-	return 0.5 * (vlo + vhi), vhi
 }
 
 // b2i is 1 for true and 0 for false; the compiler makes it a flag move.
@@ -143,8 +148,9 @@ const bracketMinN = 4096
 // counts the values below lo and moves those inside the bracket to the
 // front, and quickselect finishes on those few. The values are exact, the
 // same as a full quickselect; ok is false (x still a permutation of its
-// input) when the bracket missed, and the caller selects on all of x.
-func bracketMedian(x []float64) (lo, hi float64, ok bool) {
+// input) when the bracket missed, and the caller selects on all of x. When
+// buf has room for x, the selections are selectPair's, with buf as scratch.
+func bracketMedian(x, buf []float64) (lo, hi float64, ok bool) {
 	n := len(x)
 	k := n / 2
 	// The sample is swapped to the front of x (x stays a permutation).
@@ -157,8 +163,17 @@ func bracketMedian(x []float64) (lo, hi float64, ok bool) {
 	// Sample ranks m/2 ± 3.5 standard deviations (sqrt(m)/2) and a margin.
 	d := int(1.75*math.Sqrt(float64(m))) + 4
 	ra, rb := max(m/2-d, 0), min(m/2+d, m-1)
-	bhi := selectKth(smp, rb)
-	blo := selectKth(smp[:rb], ra)
+	var blo, bhi float64
+	if len(buf) >= n {
+		// on copies: the sample must stay in x
+		copy(buf, smp)
+		bhi, _ = selectPair(buf[:m], buf[m:2*m], rb, rb, math.NaN())
+		copy(buf, smp)
+		blo, _ = selectPair(buf[:m], buf[m:2*m], ra, ra, math.NaN())
+	} else {
+		bhi = selectKth(smp, rb)
+		blo = selectKth(smp[:rb], ra)
+	}
 	// Branch-free: the compiler turns both conditional increments into
 	// conditional moves, and the swap is done for every value (a no-op
 	// move of two values outside the bracket when the increment is 0).
@@ -180,6 +195,10 @@ func bracketMedian(x []float64) (lo, hi float64, ok bool) {
 		return 0, 0, false
 	}
 	cand := x[:c]
+	if len(buf) >= n {
+		lo, hi = selectPair(cand, buf[:c], r-1, r, math.NaN())
+		return lo, hi, true
+	}
 	hi = selectKth(cand, r)
 	lo = cand[0]
 	for _, v := range cand[1:r] {

@@ -10,7 +10,8 @@ import (
 // TestMedianSplit checks the branch-free median against the sorted order
 // statistics, bit for bit, on hand-made cases and on random samples of
 // every size up to 300, continuous and quantised (many ties), with first
-// pivots that are absent, in the data, below it and above it.
+// pivots that are absent, in the data, below it and above it; and medianBuf
+// on inputs long enough to be bracketed first.
 func TestMedianSplit(t *testing.T) {
 	for _, c := range []struct {
 		x        []float64
@@ -57,6 +58,28 @@ func TestMedianSplit(t *testing.T) {
 				}
 			}
 			if got := medianBuf(slices.Clone(x), make([]float64, n)); got != want {
+				t.Fatalf("medianBuf n=%d q=%g: got %v, want %v", n, q, got, want)
+			}
+		}
+	}
+	// long inputs take the bracketing path, with its selections on buf
+	for _, n := range []int{bracketMinN, 5001, 20000, 86401} {
+		for _, q := range []float64{0, 1e-3} {
+			x := make([]float64, n)
+			for i := range x {
+				v := rng.NormFloat64() * 0.005
+				if q > 0 {
+					v = math.Round(v/q) * q
+				}
+				x[i] = math.Abs(v)
+			}
+			s := slices.Clone(x)
+			slices.Sort(s)
+			want := s[n/2]
+			if n%2 == 0 {
+				want = 0.5 * (s[n/2-1] + s[n/2])
+			}
+			if got := medianBuf(x, make([]float64, n)); got != want {
 				t.Fatalf("medianBuf n=%d q=%g: got %v, want %v", n, q, got, want)
 			}
 		}
