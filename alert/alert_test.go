@@ -75,6 +75,19 @@ func TestTrackerLifecycle(t *testing.T) {
 	}
 }
 
+func TestTrackerSameTimeCountsOnce(t *testing.T) {
+	tr := NewTracker(nil)
+	tr.Update(t0, []string{"T1"}, []detect.Finding{finding("T1", "tank_leak", "", 0)})
+	at := t0.Add(time.Hour)
+	for i := range 5 { // the same evaluation repeated (a re-scan of the same data)
+		tr = NewTracker(tr.Records())
+		evs := tr.Update(at, []string{"T1"}, nil)
+		if len(evs) != 1 || evs[0].Status != StatusOngoing {
+			t.Fatalf("repeat %d: %v, want one ongoing (held) finding", i, statuses(evs))
+		}
+	}
+}
+
 func TestTrackerSubtypeRefinedIsNotNew(t *testing.T) {
 	tr := NewTracker(nil)
 	tr.Update(t0, []string{"T1"}, []detect.Finding{finding("T1", "restriction", "abrupt", -3)})
@@ -165,6 +178,13 @@ func TestWebhookRetriesAndHidesURL(t *testing.T) {
 	err := bad.Notify(context.Background(), evs)
 	if err == nil || strings.Contains(err.Error(), "s3cret") {
 		t.Errorf("error %v: want an error without the secret", err)
+	}
+	// A transport error (server gone) is where the URL would show.
+	gone := WebhookNotifier{URL: srv2.URL + "/hook?key=s3cret", Client: &http.Client{Timeout: time.Second}}
+	srv2.Close()
+	err = gone.Notify(context.Background(), evs)
+	if err == nil || strings.Contains(err.Error(), "s3cret") {
+		t.Errorf("transport error %v: want an error without the secret", err)
 	}
 }
 

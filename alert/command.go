@@ -35,6 +35,8 @@ func (n CommandNotifier) Notify(ctx context.Context, evs []Event) error {
 	defer cancel()
 	cmd := exec.CommandContext(ctx, n.Argv[0], n.Argv[1:]...)
 	cmd.Stdin = bytes.NewReader(buf)
+	// A hook that leaves a child holding stderr must not hold the scan.
+	cmd.WaitDelay = 5 * time.Second
 	var stderr bytes.Buffer
 	cmd.Stderr = &stderr
 	if err := cmd.Run(); err != nil {

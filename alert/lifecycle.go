@@ -27,8 +27,11 @@ type Record struct {
 	FirstSeen time.Time `json:"first_seen"`
 	LastSeen  time.Time `json:"last_seen"`
 	ClearedAt time.Time `json:"cleared_at,omitzero"`
-	// Missed counts the consecutive evaluations of its tank without it.
+	// Missed counts the consecutive evaluations of its tank without it;
+	// Checked is the time of the last evaluation of its tank, so that an
+	// evaluation repeated at the same time counts once.
 	Missed  int            `json:"missed,omitempty"`
+	Checked time.Time      `json:"checked,omitzero"`
 	Finding detect.Finding `json:"finding"`
 }
 
@@ -109,7 +112,7 @@ func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Fi
 		} else {
 			r.Status = StatusOngoing
 		}
-		r.LastSeen, r.Finding, r.Missed = now, f, 0
+		r.LastSeen, r.Finding, r.Missed, r.Checked = now, f, 0, now
 		evs = append(evs, Event{Status: r.Status, At: now, Finding: f})
 	}
 	clearAfter := t.ClearAfter
@@ -124,7 +127,10 @@ func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Fi
 			delete(t.recs, k)
 			continue
 		}
-		r.Missed++
+		if now.After(r.Checked) {
+			r.Missed++
+			r.Checked = now
+		}
 		if r.Missed < clearAfter && !t.reset[r.Finding.Tank] {
 			r.Status = StatusOngoing
 			evs = append(evs, Event{Status: StatusOngoing, At: now, Finding: r.Finding})

@@ -27,7 +27,8 @@ type Tank struct {
 	ID, Site, Description string
 	// BaselineKM25s is the reference K (0 while the baseline is learned).
 	BaselineKM25s float64
-	// Fits are the tank's accepted drains in the report's trend window, oldest first.
+	// Fits are the tank's drains in the report's trend window, oldest first;
+	// only grades A and B with a finite K are shown.
 	Fits []model.Fit
 	// Findings are the tank's active findings (new or ongoing).
 	Findings []alert.Record
@@ -64,6 +65,7 @@ type row struct {
 func summarize(in Input) []row {
 	rows := make([]row, 0, len(in.Tanks))
 	for _, t := range in.Tanks {
+		t.Fits = usable(t.Fits)
 		r := row{Tank: t, ChangePct: math.NaN()}
 		for _, f := range t.Fits {
 			if f.EndNs >= in.PeriodStart.UnixNano() {
@@ -108,6 +110,17 @@ func summarize(in Input) []row {
 		rows = append(rows, r)
 	}
 	return rows
+}
+
+// usable keeps the fits that detection uses: grade A or B, finite K > 0.
+func usable(fits []model.Fit) []model.Fit {
+	var out []model.Fit
+	for _, f := range fits {
+		if (f.Quality == model.QualityA || f.Quality == model.QualityB) && f.KM25s > 0 && !math.IsInf(f.KM25s, 0) {
+			out = append(out, f)
+		}
+	}
+	return out
 }
 
 func duration(s float64) string {

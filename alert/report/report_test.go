@@ -23,7 +23,7 @@ func fits(k0, slopePerDay float64, n int) []model.Fit {
 	for i := range n {
 		end := now.Add(time.Duration(i-n) * 24 * time.Hour)
 		k := k0 * (1 + slopePerDay*float64(i))
-		out = append(out, model.Fit{EndNs: end.UnixNano(), KM25s: k, KLo95M25s: k * 0.99, KHi95M25s: k * 1.01})
+		out = append(out, model.Fit{EndNs: end.UnixNano(), KM25s: k, KLo95M25s: k * 0.99, KHi95M25s: k * 1.01, Quality: model.QualityA})
 	}
 	return out
 }
@@ -42,6 +42,20 @@ func input() Input {
 			{ID: "sump-1", BaselineKM25s: 0.01, Fits: fits(0.01, 0, 20), Rank: detect.FleetRank{Tank: "sump-1", QValue: 0.9}},
 			{ID: "new-3"},
 		},
+	}
+}
+
+func TestReportSkipsRejectedDrains(t *testing.T) {
+	in := input()
+	bad := model.Fit{EndNs: now.UnixNano(), KM25s: 0.001, Quality: model.QualityReject}
+	in.Tanks[1].Fits = append(in.Tanks[1].Fits, bad)
+	var md bytes.Buffer
+	if err := Markdown(&md, in); err != nil {
+		t.Fatal(err)
+	}
+	// sump-1's latest usable drain is at its baseline: change +0.0 %, not -90 %.
+	if !strings.Contains(md.String(), "| sump-1 | ok | 7 | 0.01 | 0.01 (0.0099–0.0101) | +0.0 % |") {
+		t.Errorf("a rejected drain leaked into the report:\n%s", md.String())
 	}
 }
 

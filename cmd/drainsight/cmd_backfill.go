@@ -14,8 +14,11 @@ import (
 const backfillAbout = `Processes months of InfluxDB history window by window (one query per
 window and site, a day by default), committing every tank after each window.
 Interrupted, it resumes from the tanks' checkpoints when run again: no drain
-is lost or fitted twice. Shows a progress bar on a terminal and a log line
-per window otherwise. File sources are scanned whole, as by scan.`
+is lost or fitted twice. A tank that already has a checkpoint (from an
+earlier scan or backfill) continues from it; --since applies to tanks without
+one, so run backfill before the first scheduled scan (or on a fresh state
+file) to bring in older history. Shows a progress bar on a terminal and a log
+line per window otherwise. File sources are read as by scan.`
 
 func runBackfill(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "backfill", "backfill --config FILE --since DATE [--until DATE] [--out DIR]", backfillAbout)

@@ -2,11 +2,13 @@ package main
 
 import (
 	"bytes"
+	"cmp"
 	"context"
 	"fmt"
 	"log/slog"
 	"os"
 	"path/filepath"
+	"slices"
 	"time"
 
 	"drainsight/alert"
@@ -154,11 +156,21 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 		byTank[id] = t
 		order = append(order, id)
 	}
-	var opt detect.Options
-	if len(plans) > 0 {
-		opt = plans[0].detOpt
+	// Each tank is evaluated with its own options; the watch list controls
+	// the false discovery rate across the fleet (Benjamini-Hochberg).
+	ranks := make([]detect.FleetRank, len(states))
+	pvals := make([]float64, len(states))
+	for i, st := range states {
+		ranks[i] = detect.RankFleet([]*detect.State{st}, now, plans[i].detOpt, in.FDR)[0]
+		pvals[i] = ranks[i].PValue
 	}
-	ranks := detect.RankFleet(states, now, opt, in.FDR)
+	q, watch := detect.BenjaminiHochberg(pvals, in.FDR)
+	for i := range ranks {
+		ranks[i].QValue, ranks[i].Watch = q[i], watch[i]
+	}
+	slices.SortStableFunc(ranks, func(a, b detect.FleetRank) int {
+		return cmp.Or(cmp.Compare(evidence(a.PValue), evidence(b.PValue)), cmp.Compare(a.Tank, b.Tank))
+	})
 	for _, r := range ranks {
 		t := byTank[r.Tank]
 		if t == nil {
@@ -182,4 +194,12 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 		}
 	}
 	return in, nil
+}
+
+// evidence orders p-values for the fleet view: no evidence (NaN) sorts last.
+func evidence(p float64) float64 {
+	if p != p {
+		return 1
+	}
+	return p
 }

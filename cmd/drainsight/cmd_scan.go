@@ -29,7 +29,7 @@ Writes DIR/events.jsonl (the drains fitted in this pass) and
 DIR/findings.jsonl (every transition of the pass and the state at the end:
 new, ongoing or cleared), notifies the new and cleared findings of the last
 24 h, and prints a short summary. A tank's first InfluxDB scan reads 7 days;
-use backfill for more.
+to start with more history, run backfill before the first scan.
 
 Running scan again over the same data fits nothing twice and repeats no alert.
 Exit status: 0 done, 1 error (a tank failed), 2 bad usage, 3 with
@@ -101,10 +101,12 @@ func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath
 	if err != nil {
 		return res, err
 	}
+	// Notify before anything else can fail: the lifecycle already recorded
+	// these transitions and will not offer them again.
+	notifyAll(ctx, cfg, log, res.now, res.events)
 	if err := writeOutputs(outDir, res); err != nil {
 		return res, err
 	}
-	notifyAll(ctx, cfg, log, res.now, res.events)
 	printSummary(e.stdout, res, outDir, time.Since(start))
 	return res, nil
 }
@@ -291,7 +293,9 @@ func notifyAll(ctx context.Context, cfg *config.Config, log *slog.Logger, now ti
 	}
 	url := cfg.Outputs.Alert.WebhookURL
 	if env := cfg.Outputs.Alert.WebhookURLEnv; env != "" {
-		url = os.Getenv(env)
+		if url = os.Getenv(env); url == "" {
+			log.Error("webhook not sent: environment variable is empty or unset", "variable", env)
+		}
 	}
 	if url != "" {
 		ns = append(ns, alert.WebhookNotifier{URL: url})

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"log/slog"
+	"sync"
 	"time"
 
 	"github.com/robfig/cron/v3"
@@ -37,12 +38,19 @@ func runServe(ctx context.Context, e *env, args []string) error {
 	if loc == nil {
 		loc = time.UTC
 	}
+	// The scan and the report share the state file (one process at a time
+	// holds its lock): they take turns.
+	var turn sync.Mutex
 	scan := func() {
+		turn.Lock()
+		defer turn.Unlock()
 		if _, err := scanOnce(ctx, e, cfg, "", "", scanOptions{}, log); err != nil {
 			log.Error("scheduled scan failed", "err", err)
 		}
 	}
 	rep := func() {
+		turn.Lock()
+		defer turn.Unlock()
 		if err := writeReportFiles(cfg, "", cfg.Outputs.Directory, time.Now().UTC(), log); err != nil {
 			log.Error("scheduled report failed", "err", err)
 		} else {

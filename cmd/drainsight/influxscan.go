@@ -105,7 +105,8 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 
 	// Pipeline: one goroutine pulls window after window (one query each)
 	// while the tanks of the previous window are segmented, fitted and
-	// committed, a few tanks at a time. At most two windows are in memory.
+	// committed, a few tanks at a time. At most three windows are in memory
+	// (one being analysed, one queued, one being pulled).
 	pctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	ch := make(chan pulledWindow, 1)
@@ -195,6 +196,9 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		if t.run != nil {
 			t.out.samples, t.out.drains, t.out.reset = t.run.total, t.run.drains, t.run.maintChanged
 		}
+		if t.run != nil && t.out.err != nil {
+			t.out.evals = t.run.evals // evaluated before the failure
+		}
 		if t.out.err == nil && t.run != nil {
 			t.out.evals = append(t.run.evals, evaluation{at: now, findings: t.run.det.Evaluate(now, t.p.detOpt)})
 			j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, t.out.findings())
@@ -204,21 +208,29 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	return outs
 }
 
-// writeFindings writes the tank's active findings back, stamped at the end
-// of the tank's last accepted drain so that re-writing overwrites.
+// writeFindings writes the tank's active findings back (tags tank, site,
+// kind, subtype), stamped at the end of the tank's last drain (or its last
+// sample) so that re-writing overwrites.
 func (j *job) writeFindings(ctx context.Context, c *influx.Client, meas, site string, det *detect.State, fs []detect.Finding) {
-	if len(fs) == 0 || det.LastFitNs == 0 {
+	if len(fs) == 0 {
+		return
+	}
+	at := det.LastFitNs
+	if at == 0 {
+		at = det.Sensor.LastSampleNs // a tank with no drain yet (a dead feed, say)
+	}
+	if at == 0 {
 		return
 	}
 	pts := make([]influx.Point, 0, len(fs))
 	for _, f := range fs {
 		pts = append(pts, influx.Point{
 			Measurement: meas,
-			Tags:        map[string]string{"tank": f.Tank, "site": site, "kind": f.Kind},
+			Tags:        map[string]string{"tank": f.Tank, "site": site, "kind": f.Kind, "subtype": f.Subtype},
 			Fields: map[string]float64{"magnitude_pct": f.MagnitudePct, "value": f.Value,
 				"threshold": f.Threshold, "p_value": f.PValue},
-			StringFields: map[string]string{"subtype": f.Subtype, "statistic": f.Statistic, "evidence": f.Evidence},
-			TimeNs:       det.LastFitNs,
+			StringFields: map[string]string{"statistic": f.Statistic, "evidence": f.Evidence},
+			TimeNs:       at,
 		})
 	}
 	if err := c.WritePoints(ctx, pts); err != nil {

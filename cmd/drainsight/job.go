@@ -213,11 +213,13 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	}
 	slices.SortFunc(outcomes, func(a, b tankOutcome) int { return cmp.Compare(a.tank, b.tank) })
 	res.outcomes = outcomes
-	if err := ctx.Err(); err != nil {
-		return res, err
-	}
+	// The lifecycle runs even when the pass was interrupted: what was
+	// committed and evaluated is reported.
 	evs, err := j.updateAlerts(now, outcomes)
 	res.events = evs
+	if cerr := ctx.Err(); cerr != nil {
+		return res, cerr
+	}
 	return res, err
 }
 
@@ -352,9 +354,7 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 			}
 			prev = append(prev, r)
 		}
-		if o.err != nil {
-			continue
-		}
+		// A failed tank contributes the evaluations made before it failed.
 		for _, ev := range o.evals {
 			sl := slots[ev.at.UnixNano()]
 			if sl == nil {

@@ -144,18 +144,25 @@ func TestDemoEndToEnd(t *testing.T) {
 		}
 	}
 
-	// Scan the same files again with the same state.
+	// Scan the same files again with the same state, three times (a finding
+	// clears only after three evaluations without it): nothing is fitted
+	// twice, nothing is new or cleared, nothing is notified.
 	cfg := filepath.Join(dir, "demo.yaml")
-	out2, stderr2, err := runArgs(t, "scan", "--config", cfg, "--out", dir, "--now", "2026-05-05T00:00:00Z")
-	if err != nil {
-		t.Fatalf("second scan: %v\n%s\n%s", err, out2, stderr2)
-	}
-	if ev := readJSONL(t, filepath.Join(dir, "events.jsonl")); len(ev) != 0 {
-		t.Errorf("second scan over the same data fitted %d drains again", len(ev))
-	}
-	for _, f := range readJSONL(t, filepath.Join(dir, "findings.jsonl")) {
-		if f["status"] == "new" {
-			t.Errorf("second scan repeated an alert: %v", f)
+	for i := range 3 {
+		out2, stderr2, err := runArgs(t, "scan", "--config", cfg, "--out", dir, "--now", "2026-05-05T00:00:00Z")
+		if err != nil {
+			t.Fatalf("re-scan %d: %v\n%s\n%s", i, err, out2, stderr2)
+		}
+		if ev := readJSONL(t, filepath.Join(dir, "events.jsonl")); len(ev) != 0 {
+			t.Errorf("re-scan %d over the same data fitted %d drains again", i, len(ev))
+		}
+		for _, f := range readJSONL(t, filepath.Join(dir, "findings.jsonl")) {
+			if f["status"] != "ongoing" {
+				t.Errorf("re-scan %d repeated an alert: %v", i, f)
+			}
+		}
+		if strings.Contains(stderr2, "msg=finding") {
+			t.Errorf("re-scan %d notified:\n%s", i, stderr2)
 		}
 	}
 

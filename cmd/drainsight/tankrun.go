@@ -194,13 +194,17 @@ func (r *tankRun) feed(s *model.Series) {
 	for i < n && s.TimeNs[i] < r.fromNs {
 		i++
 	}
+	for n > i && s.TimeNs[n-1] >= r.limitNs {
+		n-- // samples after the pass's evaluation time wait for a later pass
+	}
 	for i < n {
-		if r.cutNs != 0 && s.TimeNs[i] >= r.cutNs {
+		// Evaluate at every midnight the data have passed, gaps included.
+		for r.cutNs != 0 && s.TimeNs[i] >= r.cutNs {
 			if cut := r.cutNs; cut > r.prevEvalNs && cut < r.limitNs {
 				at := time.Unix(0, cut).UTC()
 				r.evals = append(r.evals, evaluation{at: at, findings: r.det.Evaluate(at, r.p.detOpt)})
 			}
-			r.cutNs = 0
+			r.cutNs += int64(evalEvery)
 		}
 		if r.cutNs == 0 {
 			r.cutNs = nextEval(s.TimeNs[i])
@@ -271,10 +275,17 @@ func (r *tankRun) commit(final bool, nowNs int64) (fits []model.Fit, err error) 
 	if err != nil {
 		return nil, fmt.Errorf("tank %s: encode detector state: %w", r.p.cfg.ID, err)
 	}
+	// UpdatedNs is the evaluation time of the pass, written only by its
+	// final commit: a pass interrupted after some windows leaves the old
+	// one, so that the next pass evaluates the midnights it re-reads.
+	updated := r.prevEvalNs
+	if final {
+		updated = nowNs
+	}
 	cp := store.Checkpoint{
 		CommittedNs: committed,
 		ResumeNs:    committed,
-		UpdatedNs:   nowNs,
+		UpdatedNs:   updated,
 		Samples:     r.cp.Samples + r.seen,
 		Drains:      r.cp.Drains + len(r.fresh),
 	}
