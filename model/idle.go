@@ -83,7 +83,11 @@ func FitIdle(t *Tank, seg *Segment) (IdleFit, error) {
 			abs = append(abs, math.Abs(v-lf.a-lf.b*(float64(ts[i]-t0)*1e-9)))
 		}
 	}
-	sigma := madScale * medianBuf(abs, z) // z is rewritten below
+	// the median works on a copy (tau and w are free here), so that abs
+	// serves the outlier test below
+	sel := sc.tau[:len(abs)]
+	copy(sel, abs)
+	sigma := madScale * medianBuf(sel, sc.w)
 	if !(sigma > 0) {
 		var ss float64
 		for i, v := range ys {
@@ -97,10 +101,14 @@ func FitIdle(t *Tank, seg *Segment) (IdleFit, error) {
 	lim := 5 * sigma
 	nOut := 0
 	if sigma > 0 {
-		for i, v := range ys {
-			if keep[i] && math.Abs(v-lf.a-lf.b*(float64(ts[i]-t0)*1e-9)) > lim {
-				keep[i] = false
-				nOut++
+		ia := 0 // abs holds the kept samples' residuals in order
+		for i := range ys {
+			if keep[i] {
+				if abs[ia] > lim {
+					keep[i] = false
+					nOut++
+				}
+				ia++
 			}
 		}
 	}
