@@ -409,7 +409,9 @@ func (s *Segmenter) emit(j, p int, med float64) {
 		for w.oldestT() < lo {
 			w.popFront()
 		}
-		if med < w.maxY()-s.trig || med > w.minY()+s.trig || s.metered || j == s.idleStart || t >= s.cutAt {
+		yMax, _ := w.top()
+		yMin, _ := w.bottom()
+		if med < yMax-s.trig || med > yMin+s.trig || s.metered || j == s.idleStart || t >= s.cutAt {
 			s.quietStep(j, t, med)
 		}
 	} else {

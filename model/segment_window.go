@@ -96,53 +96,29 @@ func (w *extremes) transfer() {
 	w.bt, w.by = w.bt[:0], w.by[:0]
 }
 
-// argMax is the index of the largest level in the window (the latest among
+// top is the largest level in the window and its index (the latest among
 // equal ones); the window must not be empty.
-func (w *extremes) argMax() int {
-	if w.fh == len(w.ft) {
-		return w.bArgMax
+func (w *extremes) top() (float64, int) {
+	if w.fh == len(w.ft) || (len(w.bt) > 0 && w.bMax >= w.fMax[w.fh]) {
+		return w.bMax, w.bArgMax
 	}
-	if len(w.bt) > 0 && w.bMax >= w.fMax[w.fh] {
-		return w.bArgMax
-	}
-	return w.fArgMax[w.fh]
+	return w.fMax[w.fh], w.fArgMax[w.fh]
 }
 
-// maxY is the largest level in the window, the level at argMax; the window
-// must not be empty.
-func (w *extremes) maxY() float64 {
-	if w.fh == len(w.ft) {
-		return w.bMax
+// bottom is the smallest level in the window and its index (the latest
+// among equal ones); the window must not be empty.
+func (w *extremes) bottom() (float64, int) {
+	if w.fh == len(w.ft) || (len(w.bt) > 0 && w.bMin <= w.fMin[w.fh]) {
+		return w.bMin, w.bArgMin
 	}
-	if len(w.bt) > 0 && w.bMax >= w.fMax[w.fh] {
-		return w.bMax
-	}
-	return w.fMax[w.fh]
+	return w.fMin[w.fh], w.fArgMin[w.fh]
 }
 
-// minY is the smallest level in the window, the level at argMin; the window
-// must not be empty.
-func (w *extremes) minY() float64 {
-	if w.fh == len(w.ft) {
-		return w.bMin
-	}
-	if len(w.bt) > 0 && w.bMin <= w.fMin[w.fh] {
-		return w.bMin
-	}
-	return w.fMin[w.fh]
-}
+// argMax is the index of the largest level in the window.
+func (w *extremes) argMax() int { _, i := w.top(); return i }
 
-// argMin is the index of the smallest level in the window (the latest among
-// equal ones); the window must not be empty.
-func (w *extremes) argMin() int {
-	if w.fh == len(w.ft) {
-		return w.bArgMin
-	}
-	if len(w.bt) > 0 && w.bMin <= w.fMin[w.fh] {
-		return w.bArgMin
-	}
-	return w.fArgMin[w.fh]
-}
+// argMin is the index of the smallest level in the window.
+func (w *extremes) argMin() int { _, i := w.bottom(); return i }
 
 func grow(x []float64, n int) []float64 {
 	if cap(x) < n {
