@@ -165,7 +165,7 @@ func Markdown(w io.Writer, in Input) error {
 			fc = "-"
 		}
 		fmt.Fprintf(&b, "| %s | %s | %d | %s | %s | %s | %s / %s | %s | %s |\n", r.ID, r.Status, r.DrainsInPeriod,
-			kText(r.BaselineKM25s), ci, pct(r.ChangePct), r.DrainNow, r.DrainBase, fc, qText(r.Rank.QValue))
+			kText(r.BaselineKM25s), ci, pct(r.ChangePct), r.DrainNow, r.DrainBase, fc, qText(r.Rank))
 	}
 	var watch []string
 	for _, r := range rows {
@@ -204,11 +204,15 @@ func Markdown(w io.Writer, in Input) error {
 	return err
 }
 
-func qText(q float64) string {
-	if q == 0 || math.IsNaN(q) {
+// qText shows a tank's q-value; "-" when the tank was not ranked.
+func qText(r detect.FleetRank) string {
+	if r.Tank == "" || math.IsNaN(r.QValue) {
 		return "-"
 	}
-	return fmt.Sprintf("%.2g", q)
+	if r.QValue == 0 {
+		return "0" // below the smallest float64
+	}
+	return fmt.Sprintf("%.2g", r.QValue)
 }
 
 func listOrNone(s []string) string {
