@@ -16,9 +16,11 @@ window and site, a day by default), committing every tank after each window.
 Interrupted, it resumes from the tanks' checkpoints when run again: no drain
 is lost or fitted twice. A tank that already has a checkpoint (from an
 earlier scan or backfill) continues from it; --since applies to tanks without
-one, so run backfill before the first scheduled scan (or on a fresh state
-file) to bring in older history. Shows a progress bar on a terminal and a log
-line per window otherwise. File sources are read as by scan.`
+one. To bring in history older than a tank's first scan, add --reanalyse: it
+forgets every tank's fits, statistics and checkpoint (maintenance records and
+alert states are kept) and analyses again from --since. Shows a progress bar
+on a terminal and a log line per window otherwise. File sources are read as
+by scan.`
 
 func runBackfill(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "backfill", "backfill --config FILE --since DATE [--until DATE] [--out DIR]", backfillAbout)
@@ -27,6 +29,7 @@ func runBackfill(ctx context.Context, e *env, args []string) error {
 	until := fs.String("until", "", "end of the history (default: now minus the settle delay)")
 	outDir := fs.String("out", "", "output directory (default: outputs.directory of the config)")
 	statePath := fs.String("state", "", "state file (default: outputs.state_file of the config)")
+	reanalyse := fs.Bool("reanalyse", false, "forget the tanks' analysis state first and start again from --since")
 	verbose := fs.Bool("v", false, "debug logging")
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
@@ -38,7 +41,7 @@ func runBackfill(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return &usageError{"backfill: --since: " + err.Error()}
 	}
-	opt := scanOptions{sinceNs: from.UnixNano()}
+	opt := scanOptions{sinceNs: from.UnixNano(), reanalyse: *reanalyse}
 	if *until != "" {
 		to, err := parseDay(*until)
 		if err != nil {

@@ -29,7 +29,7 @@ Writes DIR/events.jsonl (the drains fitted in this pass) and
 DIR/findings.jsonl (every transition of the pass and the state at the end:
 new, ongoing or cleared), notifies the new and cleared findings of the last
 24 h, and prints a short summary. A tank's first InfluxDB scan reads 7 days;
-to start with more history, run backfill before the first scan.
+for more, run backfill (with --reanalyse once a tank has been scanned).
 
 Running scan again over the same data fits nothing twice and repeats no alert.
 Exit status: 0 done, 1 error (a tank failed), 2 bad usage, 3 with

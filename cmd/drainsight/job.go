@@ -96,6 +96,9 @@ type scanOptions struct {
 	sinceNs  int64     // backfill: start here instead of at the checkpoint (0: checkpoint)
 	untilNs  int64     // backfill: stop here (0: now minus the settle delay)
 	progress func(done, total int, tank string)
+	// reanalyse forgets every tank's fits, detector state and checkpoint
+	// before the pass (maintenance and alert records are kept).
+	reanalyse bool
 }
 
 // tankOutcome is what one tank gave in one pass.
@@ -166,6 +169,13 @@ func (r *scanResult) failed() []tankOutcome {
 // carry on.
 func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	res := &scanResult{}
+	if opt.reanalyse {
+		for _, p := range j.plans {
+			if err := j.st.DeleteTank(p.cfg.ID); err != nil && !errors.Is(err, store.ErrNotFound) {
+				return res, err
+			}
+		}
+	}
 	var fileTanks, influxTanks []*plan
 	for _, p := range j.plans {
 		if p.cfg.Source.Format == "influx" {
