@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"math/bits"
 	"strconv"
 	"time"
@@ -39,8 +40,8 @@ import (
 // cell after the annotations is the header (a #datatype annotation is then
 // required); a data record must have as many cells as the header; an empty
 // cell takes the column's #default; data before any annotation is an error.
-// Unlike the library, it converts only the three cells it needs (time, value,
-// tank) and records whose first cell is neither empty nor an annotation are
+// Unlike the library, it converts only the cells it needs (time, value, tank,
+// and the second value of a pivoted result) and records whose first cell is neither empty nor an annotation are
 // ignored rather than repeating the previous record.
 
 // valueKind is the #datatype of the _value column.
@@ -77,6 +78,8 @@ type csvRows struct {
 	out    []byte    // its unquoted cells
 	bounds [][2]int  // cell bounds in out
 	tagCol string    // name of the tank column
+	valCol string    // name of the value column: "_value", or a field name after a pivot
+	auxCol string    // name of the second value column of a pivoted result; "" for none
 
 	// Current table.
 	inTable    bool // an annotation block or a table is open
@@ -88,17 +91,27 @@ type csvRows struct {
 	iTime      int // -1 when absent
 	iValue     int
 	iTag       int
+	iAux       int  // -1 when absent (or not asked for): the second value reads NaN
 	usable     bool // the table has time, numeric value and tank columns
 	noFast     bool // tests: general path only
 	timeOK     bool // the time column is a dateTime
 	tagOK      bool // the tank column is a string
 	kind       valueKind
-	types      [][]byte // per cell, #datatype (copies)
-	defaults   [][]byte // per cell, #default (copies)
+	auxKind    valueKind // valueOther: the second value reads NaN
+	types      [][]byte  // per cell, #datatype (copies)
+	defaults   [][]byte  // per cell, #default (copies)
 }
 
 func newCSVRows(src io.Reader, tagCol string) *csvRows {
-	return &csvRows{src: src, buf: make([]byte, 256<<10), tagCol: tagCol, qAt: -1, iTime: -1, iValue: -1, iTag: -1}
+	return newCSVPairRows(src, tagCol, "_value", "")
+}
+
+// newCSVPairRows reads the value from the column named valCol and, when
+// auxCol is not "", a second value from the column named auxCol: the shape of
+// a result pivoted on _field, whose value columns are named after the fields.
+func newCSVPairRows(src io.Reader, tagCol, valCol, auxCol string) *csvRows {
+	return &csvRows{src: src, buf: make([]byte, 256<<10), tagCol: tagCol, valCol: valCol, auxCol: auxCol,
+		qAt: -1, iTime: -1, iValue: -1, iTag: -1, iAux: -1}
 }
 
 // fill reads more input after buf[w:], compacting or growing buf as needed.
@@ -343,22 +356,31 @@ func (c *csvRows) readErr() error { return c.err }
 // At the end of the input it returns ok false and a nil error; an in-band
 // query error, malformed CSV or a failed read are returned as errors.
 func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error) {
+	tank, tNs, v, _, ok, err = c.nextPair()
+	return tank, tNs, v, ok, err
+}
+
+// nextPair is next that also returns the second value of the row (the
+// auxCol cell): NaN when the reader has no second column, the table lacks
+// it, its type is not numeric or the cell is empty. Whether a row is
+// returned depends on the first value alone.
+func (c *csvRows) nextPair() (tank []byte, tNs int64, v, aux float64, ok bool, err error) {
 	for {
 		if c.usable && !c.noFast {
-			tank, ts, vs, fast := c.fastRow()
+			tank, ts, vs, as, fast := c.fastRow()
 			if fast {
 				if len(tank) == 0 || len(ts) == 0 || len(vs) == 0 {
 					continue
 				}
-				tNs, v, err = c.convert(ts, vs)
+				tNs, v, aux, err = c.convert(ts, vs, as)
 				if err != nil {
-					return nil, 0, 0, false, err
+					return nil, 0, 0, 0, false, err
 				}
-				return tank, tNs, v, true, nil
+				return tank, tNs, v, aux, true, nil
 			}
 		}
 		if !c.record() {
-			return nil, 0, 0, false, c.readErr()
+			return nil, 0, 0, 0, false, c.readErr()
 		}
 		cells := c.cells
 		if len(cells) <= 1 {
@@ -367,7 +389,7 @@ func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error)
 		first := cells[0]
 		if len(first) > 0 && first[0] == '#' {
 			if err := c.annotation(cells); err != nil {
-				return nil, 0, 0, false, err
+				return nil, 0, 0, 0, false, err
 			}
 			continue
 		}
@@ -376,14 +398,14 @@ func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error)
 			continue // neither data nor annotation: ignored
 		}
 		if !c.inTable {
-			return nil, 0, 0, false, fmt.Errorf("line %d: data before any annotation", c.line)
+			return nil, 0, 0, 0, false, fmt.Errorf("line %d: data before any annotation", c.line)
 		}
 		if len(cells) != c.ncol {
-			return nil, 0, 0, false, fmt.Errorf("line %d: %d cells, the table has %d", c.line, len(cells), c.ncol)
+			return nil, 0, 0, 0, false, fmt.Errorf("line %d: %d cells, the table has %d", c.line, len(cells), c.ncol)
 		}
 		if !c.haveHeader {
 			if err := c.header(cells); err != nil {
-				return nil, 0, 0, false, err
+				return nil, 0, 0, 0, false, err
 			}
 			continue
 		}
@@ -395,7 +417,7 @@ func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error)
 			if len(cells) > 2 && len(cells[2]) > 0 {
 				msg += "," + string(cells[2])
 			}
-			return nil, 0, 0, false, &inBandError{msg: msg}
+			return nil, 0, 0, 0, false, &inBandError{msg: msg}
 		}
 		if !c.usable {
 			continue
@@ -406,25 +428,46 @@ func (c *csvRows) next() (tank []byte, tNs int64, v float64, ok bool, err error)
 		if len(tank) == 0 || len(ts) == 0 || len(vs) == 0 {
 			continue
 		}
-		tNs, v, err = c.convert(ts, vs)
-		if err != nil {
-			return nil, 0, 0, false, err
+		var as []byte
+		if c.iAux >= 0 {
+			as = c.cell(c.iAux)
 		}
-		return tank, tNs, v, true, nil
+		tNs, v, aux, err = c.convert(ts, vs, as)
+		if err != nil {
+			return nil, 0, 0, 0, false, err
+		}
+		return tank, tNs, v, aux, true, nil
 	}
 }
 
-// convert parses the time and value cells of a data row.
-func (c *csvRows) convert(ts, vs []byte) (tNs int64, v float64, err error) {
+// convert parses the time and value cells of a data row, and the second
+// value cell as (NaN when empty or not numeric).
+func (c *csvRows) convert(ts, vs, as []byte) (tNs int64, v, aux float64, err error) {
 	tNs, err = c.timeNs(ts)
 	if err != nil {
-		return 0, 0, fmt.Errorf("line %d: _time %q: %w", c.line, ts, err)
+		return 0, 0, 0, fmt.Errorf("line %d: _time %q: %w", c.line, ts, err)
 	}
-	s := unsafe.String(unsafe.SliceData(vs), len(vs)) // strconv keeps no reference (its errors clone the input)
-	switch c.kind {
+	v, err = parseValue(c.kind, vs)
+	if err != nil {
+		return 0, 0, 0, fmt.Errorf("line %d: %s: %w", c.line, c.valCol, err)
+	}
+	aux = math.NaN()
+	if len(as) > 0 && c.auxKind != valueOther {
+		aux, err = parseValue(c.auxKind, as)
+		if err != nil {
+			return 0, 0, 0, fmt.Errorf("line %d: %s: %w", c.line, c.auxCol, err)
+		}
+	}
+	return tNs, v, aux, nil
+}
+
+// parseValue converts a numeric cell of the given kind.
+func parseValue(kind valueKind, b []byte) (v float64, err error) {
+	s := unsafe.String(unsafe.SliceData(b), len(b)) // strconv keeps no reference (its errors clone the input)
+	switch kind {
 	case valueDouble:
 		var fast bool
-		if v, fast = fastFloat(vs); !fast {
+		if v, fast = fastFloat(b); !fast {
 			v, err = strconv.ParseFloat(s, 64)
 		}
 	case valueLong:
@@ -436,10 +479,7 @@ func (c *csvRows) convert(ts, vs []byte) (tNs int64, v float64, err error) {
 		x, err = strconv.ParseUint(s, 10, 64)
 		v = float64(x)
 	}
-	if err != nil {
-		return 0, 0, fmt.Errorf("line %d: _value: %w", c.line, err)
-	}
-	return tNs, v, nil
+	return v, err
 }
 
 // maxFastCells bounds the cells of a record that fastRow handles.
@@ -453,9 +493,9 @@ const newlines8 = 0x0a0a0a0a0a0a0a0a // '\n'
 // at a time (a line holds no quote when it ends before c.qAt) and returns the tank, time and value cells (defaults applied).
 // For anything else it consumes nothing and returns fast false, leaving the
 // record to the general path.
-func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
+func (c *csvRows) fastRow() (tank, ts, vs, as []byte, fast bool) {
 	if c.ncol > maxFastCells {
-		return nil, nil, nil, false
+		return nil, nil, nil, nil, false
 	}
 	b := c.buf[c.r:c.w]
 	if c.qAt < c.r {
@@ -477,7 +517,7 @@ func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
 		}
 		for ; cm != 0; cm &= cm - 1 {
 			if n == len(pos) {
-				return nil, nil, nil, false
+				return nil, nil, nil, nil, false
 			}
 			pos[n] = i + bits.TrailingZeros64(cm)>>3
 			n++
@@ -487,14 +527,14 @@ func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
 		}
 	}
 	if end < 0 || c.r+end > c.qAt || n+1 != c.ncol || pos[0] != 0 {
-		return nil, nil, nil, false
+		return nil, nil, nil, nil, false
 	}
 	lineEnd := end
 	if lineEnd > 0 && b[lineEnd-1] == '\r' {
 		lineEnd--
 	}
 	if pos[n-1] >= lineEnd { // the CR was in the last cell's place: let the general path judge
-		return nil, nil, nil, false
+		return nil, nil, nil, nil, false
 	}
 	c.r += end + 1
 	c.lines++
@@ -506,7 +546,10 @@ func (c *csvRows) fastRow() (tank, ts, vs []byte, fast bool) {
 		}
 		return c.defaults[k]
 	}
-	return get(c.iTag), get(c.iTime), get(c.iValue), true
+	if c.iAux >= 0 {
+		as = get(c.iAux)
+	}
+	return get(c.iTag), get(c.iTime), get(c.iValue), as, true
 }
 
 // cell returns cell i of the current record, or the column's default when
@@ -525,7 +568,7 @@ func (c *csvRows) annotation(cells [][]byte) error {
 		c.inTable, c.annot = true, true
 		c.haveHeader, c.haveType, c.errTable, c.usable = false, false, false, false
 		c.ncol = len(cells)
-		c.iTime, c.iValue, c.iTag = -1, -1, -1
+		c.iTime, c.iValue, c.iTag, c.iAux = -1, -1, -1, -1
 		c.types = resize(c.types, c.ncol)
 		c.defaults = resize(c.defaults, c.ncol)
 	}
@@ -568,31 +611,46 @@ func (c *csvRows) header(cells [][]byte) error {
 		c.errTable, c.usable = true, false
 		return nil
 	}
+	// Later columns of the same name win: the data columns follow the
+	// result and table columns. Source keeps the names asked for distinct.
 	for i := 1; i < len(cells); i++ {
 		switch string(cells[i]) {
 		case "_time":
 			c.iTime = i
-		case "_value":
+		case c.valCol:
 			c.iValue = i
 		case c.tagCol:
 			c.iTag = i
+		case c.auxCol:
+			if c.auxCol != "" {
+				c.iAux = i
+			}
 		}
 	}
 	c.timeOK = c.iTime >= 0 && bytes.HasPrefix(c.types[c.iTime], []byte("dateTime"))
 	c.tagOK = c.iTag >= 0 && string(c.types[c.iTag]) == "string"
-	c.kind = valueOther
+	c.kind, c.auxKind = valueOther, valueOther
 	if c.iValue >= 0 {
-		switch string(c.types[c.iValue]) {
-		case "double":
-			c.kind = valueDouble
-		case "long":
-			c.kind = valueLong
-		case "unsignedLong":
-			c.kind = valueULong
-		}
+		c.kind = kindOf(c.types[c.iValue])
+	}
+	if c.iAux >= 0 {
+		c.auxKind = kindOf(c.types[c.iAux])
 	}
 	c.usable = c.timeOK && c.tagOK && c.kind != valueOther
 	return nil
+}
+
+// kindOf maps a #datatype to the value kinds read as numbers.
+func kindOf(datatype []byte) valueKind {
+	switch string(datatype) {
+	case "double":
+		return valueDouble
+	case "long":
+		return valueLong
+	case "unsignedLong":
+		return valueULong
+	}
+	return valueOther
 }
 
 // inBandError is an error table in the result stream: the query failed on

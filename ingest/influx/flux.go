@@ -104,10 +104,37 @@ func fluxTime(ns int64) string {
 // tank of the measurement.
 func (s *Source) pullFlux(tanks []string, startNs, stopNs int64) string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "from(bucket: %s)\n", fluxString(s.bucket))
-	fmt.Fprintf(&b, "  |> range(start: %s, stop: %s)\n", fluxTime(startNs), fluxTime(stopNs))
-	fmt.Fprintf(&b, "  |> filter(fn: (r) => r._measurement == %s and r._field == %s)\n",
-		fluxString(s.spec.Measurement), fluxString(s.spec.Field))
+	s.fluxSelect(&b, startNs, stopNs, fmt.Sprintf("r._field == %s", fluxString(s.spec.Field)), tanks)
+	tag := fluxString(s.spec.TankTag)
+	fmt.Fprintf(&b, "  |> group(columns: [%s])\n", tag)
+	b.WriteString("  |> sort(columns: [\"_time\"])\n")
+	fmt.Fprintf(&b, "  |> keep(columns: [\"_time\", \"_value\", %s])\n", tag)
+	return b.String()
+}
+
+// pullInflowFlux builds the query of one window for PullWithInflow: both
+// fields, pivoted on _field right after the filters (which 1.8 pushes down
+// into the storage read, so the pivot follows the read directly and 1.8's
+// sorted-pivot path applies). The pivoted value columns are named after the
+// fields; keep() ignores a column no table has.
+func (s *Source) pullInflowFlux(tanks []string, startNs, stopNs int64) string {
+	var b strings.Builder
+	level, inflow := fluxString(s.spec.Field), fluxString(s.spec.InflowField)
+	s.fluxSelect(&b, startNs, stopNs, fmt.Sprintf("(r._field == %s or r._field == %s)", level, inflow), tanks)
+	b.WriteString("  |> pivot(rowKey: [\"_time\"], columnKey: [\"_field\"], valueColumn: \"_value\")\n")
+	tag := fluxString(s.spec.TankTag)
+	fmt.Fprintf(&b, "  |> group(columns: [%s])\n", tag)
+	b.WriteString("  |> sort(columns: [\"_time\"])\n")
+	fmt.Fprintf(&b, "  |> keep(columns: [\"_time\", %s, %s, %s])\n", tag, level, inflow)
+	return b.String()
+}
+
+// fluxSelect writes from, range and the filters on measurement, field (the
+// given condition), tanks and tags.
+func (s *Source) fluxSelect(b *strings.Builder, startNs, stopNs int64, fieldCond string, tanks []string) {
+	fmt.Fprintf(b, "from(bucket: %s)\n", fluxString(s.bucket))
+	fmt.Fprintf(b, "  |> range(start: %s, stop: %s)\n", fluxTime(startNs), fluxTime(stopNs))
+	fmt.Fprintf(b, "  |> filter(fn: (r) => r._measurement == %s and %s)\n", fluxString(s.spec.Measurement), fieldCond)
 	var conds []string
 	if len(tanks) > 0 {
 		ts := slices.Clone(tanks)
@@ -124,11 +151,6 @@ func (s *Source) pullFlux(tanks []string, startNs, stopNs int64) string {
 		conds = append(conds, fmt.Sprintf("%s == %s", fluxColumn(k), fluxString(s.spec.Tags[k])))
 	}
 	if len(conds) > 0 {
-		fmt.Fprintf(&b, "  |> filter(fn: (r) => %s)\n", strings.Join(conds, " and "))
+		fmt.Fprintf(b, "  |> filter(fn: (r) => %s)\n", strings.Join(conds, " and "))
 	}
-	tag := fluxString(s.spec.TankTag)
-	fmt.Fprintf(&b, "  |> group(columns: [%s])\n", tag)
-	b.WriteString("  |> sort(columns: [\"_time\"])\n")
-	fmt.Fprintf(&b, "  |> keep(columns: [\"_time\", \"_value\", %s])\n", tag)
-	return b.String()
 }

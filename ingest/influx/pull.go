@@ -3,6 +3,8 @@ package influx
 import (
 	"context"
 	"fmt"
+	"io"
+	"math"
 	"strings"
 	"time"
 )
@@ -13,6 +15,13 @@ type SeriesSpec struct {
 	Field       string            // e.g. "level"
 	TankTag     string            // the tag that holds the tank id; default "tank"
 	Tags        map[string]string // extra tag equality filters, e.g. {"site": "plant-a"}
+	// InflowField is the field of the same measurement that holds an inflow
+	// flowmeter's readings, read beside Field by PullWithInflow; "" for none.
+	// When set, Field and InflowField become column names of a pivoted
+	// result, so they must differ from each other, from the tank tag and the
+	// Tags keys, must not start with '_', and must not be "result" or
+	// "table" (the columns of the result format itself).
+	InflowField string
 }
 
 // Source pulls level samples of one SeriesSpec. It is safe for concurrent use.
@@ -41,6 +50,19 @@ func (c *Client) Source(spec SeriesSpec) (*Source, error) {
 		tags[k] = v
 	}
 	spec.Tags = tags
+	if f := spec.InflowField; f != "" {
+		for _, name := range []string{spec.Field, f} {
+			if strings.HasPrefix(name, "_") || name == "result" || name == "table" || name == spec.TankTag {
+				return nil, fmt.Errorf("influx: source: field %q: with an inflow field, field names become columns: want a name not starting with '_', other than \"result\", \"table\" and the tank tag %q", name, spec.TankTag)
+			}
+			if _, ok := spec.Tags[name]; ok {
+				return nil, fmt.Errorf("influx: source: field %q: with an inflow field, field names become columns: want a name other than the tag filter %q", name, name)
+			}
+		}
+		if f == spec.Field {
+			return nil, fmt.Errorf("influx: source: inflow field %q: want a field other than the level field", f)
+		}
+	}
 	return &Source{c: c, bucket: c.conn.Bucket, spec: spec}, nil
 }
 
@@ -48,6 +70,14 @@ func (c *Client) Source(spec SeriesSpec) (*Source, error) {
 // debugging; it holds no secret).
 func (s *Source) Flux(tanks []string, startNs, stopNs int64) string {
 	return s.pullFlux(tanks, startNs, stopNs)
+}
+
+// FluxWithInflow returns the query text PullWithInflow sends for one window.
+func (s *Source) FluxWithInflow(tanks []string, startNs, stopNs int64) string {
+	if s.spec.InflowField == "" {
+		return s.pullFlux(tanks, startNs, stopNs)
+	}
+	return s.pullInflowFlux(tanks, startNs, stopNs)
 }
 
 // Windows splits [startNs, stopNs) into consecutive half-open windows of the
@@ -103,9 +133,43 @@ func (s *Source) Pull(ctx context.Context, tanks []string, startNs, stopNs int64
 	if stopNs <= startNs {
 		return 0, nil
 	}
-	flux := s.pullFlux(tanks, startNs, stopNs)
+	rows := func(body io.Reader) *csvRows { return newCSVRows(body, s.spec.TankTag) }
+	return s.pull(ctx, s.pullFlux(tanks, startNs, stopNs), rows, startNs, stopNs,
+		func(tank string, tNs int64, v, _ float64) { add(tank, tNs, v) })
+}
+
+// PullWithInflow is Pull for a tank with an inflow flowmeter: one query per
+// window returns the level field and SeriesSpec.InflowField side by side
+// (pivoted on _field, so one row per time and series), and add is called for
+// every row with a level value, with inflow NaN when that row has no inflow
+// value (inflow readings at times without a level reading are not
+// delivered). Level and inflow are each accepted as integer or float fields;
+// an inflow field of another type reads NaN. Without an InflowField it runs
+// Pull's query and inflow is always NaN. Everything Pull guarantees holds:
+// time order within a tank, samples at stopNs dropped, retries that resume
+// after the last delivered row, typed errors.
+func (s *Source) PullWithInflow(ctx context.Context, tanks []string, startNs, stopNs int64,
+	add func(tank string, tNs int64, level, inflow float64)) (n int, err error) {
+	if stopNs <= startNs {
+		return 0, nil
+	}
+	if s.spec.InflowField == "" {
+		rows := func(body io.Reader) *csvRows { return newCSVRows(body, s.spec.TankTag) }
+		return s.pull(ctx, s.pullFlux(tanks, startNs, stopNs), rows, startNs, stopNs,
+			func(tank string, tNs int64, v, _ float64) { add(tank, tNs, v, math.NaN()) })
+	}
+	rows := func(body io.Reader) *csvRows {
+		return newCSVPairRows(body, s.spec.TankTag, s.spec.Field, s.spec.InflowField)
+	}
+	return s.pull(ctx, s.pullInflowFlux(tanks, startNs, stopNs), rows, startNs, stopNs, add)
+}
+
+// pull runs flux with retries and hands each row that rows returns in
+// [startNs, stopNs) to add once, resuming after the last delivered row when
+// an attempt fails mid-stream.
+func (s *Source) pull(ctx context.Context, flux string, newRows func(io.Reader) *csvRows, startNs, stopNs int64,
+	add func(tank string, tNs int64, v, aux float64)) (n int, err error) {
 	marks := make(map[string]*tankMark)
-	tag := s.spec.TankTag
 	op := fmt.Sprintf("query %s..%s", fluxTime(startNs), fluxTime(stopNs))
 	err = s.c.retry(ctx, op, s.c.opt.QueryTimeout, func(ctx context.Context) error {
 		for _, m := range marks {
@@ -116,10 +180,10 @@ func (s *Source) Pull(ctx context.Context, tanks []string, startNs, stopNs int64
 			return err
 		}
 		defer body.Close()
-		rows := newCSVRows(body, tag)
+		rows := newRows(body)
 		var cur *tankMark
 		for {
-			tank, t, v, ok, err := rows.next()
+			tank, t, v, a, ok, err := rows.nextPair()
 			if err != nil {
 				return err
 			}
@@ -149,7 +213,7 @@ func (s *Source) Pull(ctx context.Context, tanks []string, startNs, stopNs int64
 			} else {
 				cur.has, cur.lastNs, cur.atLast = true, t, 1
 			}
-			add(cur.name, t, v)
+			add(cur.name, t, v, a)
 			n++
 		}
 	})
