@@ -198,3 +198,43 @@ func (c *Client) WriteLevels(ctx context.Context, measurement, field, tankTag, t
 	}
 	return c.writeBatches(ctx, fmt.Sprintf("write levels of tank %q", tank), wps)
 }
+
+// WriteLevelsInflow writes one metered tank's samples as
+// measurement,tankTag=tank levelField=level,inflowField=inflow at each time,
+// in batches with retries: the shape PullWithInflow reads back. A non-finite
+// level or inflow is left out of its point (a point with neither is
+// skipped), so a NaN inflow means "no meter reading at this time". It is how
+// the demo plant loads a tank with an inflow flowmeter.
+func (c *Client) WriteLevelsInflow(ctx context.Context, measurement, levelField, inflowField, tankTag, tank string,
+	timesNs []int64, levels, inflows []float64) error {
+	if len(timesNs) != len(levels) || len(timesNs) != len(inflows) {
+		return fmt.Errorf("influx: write levels and inflows of tank %q: %d times, %d levels, %d inflows",
+			tank, len(timesNs), len(levels), len(inflows))
+	}
+	for what, s := range map[string]string{"measurement": measurement, "level field": levelField,
+		"inflow field": inflowField, "tank tag": tankTag, "tank id": tank} {
+		if err := lineSafe(s); err != nil {
+			return fmt.Errorf("influx: write levels and inflows of tank %q: %s %q %w", tank, what, s, err)
+		}
+	}
+	if levelField == inflowField {
+		return fmt.Errorf("influx: write levels and inflows of tank %q: level and inflow field are both %q", tank, levelField)
+	}
+	finite := func(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+	wps := make([]*write.Point, 0, len(levels))
+	for i, t := range timesNs {
+		lv, in := levels[i], inflows[i]
+		if !finite(lv) && !finite(in) {
+			continue
+		}
+		wp := write.NewPointWithMeasurement(measurement).AddTag(tankTag, tank).SetTime(time.Unix(0, t))
+		if finite(in) {
+			wp.AddField(inflowField, in)
+		}
+		if finite(lv) {
+			wp.AddField(levelField, lv)
+		}
+		wps = append(wps, wp)
+	}
+	return c.writeBatches(ctx, fmt.Sprintf("write levels and inflows of tank %q", tank), wps)
+}

@@ -1,0 +1,8 @@
+from(bucket: "tanks/autogen")
+  |> range(start: 2024-03-01T00:00:00Z, stop: 2024-03-02T00:00:00.000000001Z)
+  |> filter(fn: (r) => r._measurement == "tank_level" and (r._field == "level" or r._field == "inflow"))
+  |> filter(fn: (r) => r.tank =~ /^(T1|T2)$/ and r.site == "plant-a")
+  |> pivot(rowKey: ["_time"], columnKey: ["_field"], valueColumn: "_value")
+  |> group(columns: ["tank"])
+  |> sort(columns: ["_time"])
+  |> keep(columns: ["_time", "tank", "level", "inflow"])

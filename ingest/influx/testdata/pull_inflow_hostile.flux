@@ -1,0 +1,8 @@
+from(bucket: "tanks/autogen")
+  |> range(start: 2024-03-01T00:00:00Z, stop: 2024-03-01T01:00:00Z)
+  |> filter(fn: (r) => r._measurement == "lvl \"x\" \${m}" and (r._field == "and" or r._field == "in \"flow\" \${q} m3/s"))
+  |> filter(fn: (r) => r["tank id"] =~ /^(back\\slash|dollar\$\{x\}|q"uote)$/ and r["si/te"] == "\${site}")
+  |> pivot(rowKey: ["_time"], columnKey: ["_field"], valueColumn: "_value")
+  |> group(columns: ["tank id"])
+  |> sort(columns: ["_time"])
+  |> keep(columns: ["_time", "tank id", "and", "in \"flow\" \${q} m3/s"])
