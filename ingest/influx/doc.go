@@ -19,7 +19,11 @@
 // only the time, value and tank cells (located by name in each table's
 // header), parses the "2006-01-02T15:04:05.999999999Z" times Flux writes and
 // short decimals by hand (falling back to time.Parse and strconv), and
-// allocates nothing per row. In-band error tables come back as errors.
+// allocates nothing per row. [Source.PullWithInflow] reads a second field of the same
+// measurement (SeriesSpec.InflowField, an inflow flowmeter) beside the level
+// in the same query: the two fields are pivoted on _field right after the
+// filters, so each row carries both values in columns named after the
+// fields, and an inflow missing at a level's time reads NaN. In-band error tables come back as errors.
 // Query results are requested uncompressed unless Options.QueryGzip is set.
 // Samples stamped exactly at the window's stop are dropped, because
 // range() includes its stop on 1.8 and excludes it on 2.x, so consecutive

@@ -351,3 +351,36 @@ func TestWriteLevelsInflow(t *testing.T) {
 		}
 	}
 }
+
+// BenchmarkCSVPairRows is the pivoted reader alone over an in-memory body
+// in the 1.8 shape (two value columns, a third of the inflow cells empty).
+func BenchmarkCSVPairRows(b *testing.B) {
+	body := []byte(pivotCSV(benchTanks, benchRows))
+	b.SetBytes(int64(len(body)))
+	b.ReportAllocs()
+	rd := bytes.NewReader(body)
+	var sum float64
+	for b.Loop() {
+		rd.Reset(body)
+		rows := newCSVPairRows(rd, "tank", "level", "inflow")
+		n := 0
+		for {
+			_, _, v, a, ok, err := rows.nextPair()
+			if err != nil {
+				b.Fatal(err)
+			}
+			if !ok {
+				break
+			}
+			sum += v
+			if !math.IsNaN(a) {
+				sum += a
+			}
+			n++
+		}
+		if n != benchTanks*benchRows {
+			b.Fatalf("n=%d", n)
+		}
+	}
+	b.ReportMetric(b.Elapsed().Seconds()*1e9/float64(b.N*benchTanks*benchRows), "ns/point")
+}
