@@ -119,7 +119,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 				return err
 			}
 		}
-		writeDemoTank(&yaml, spec, ds, file, loader != nil, loader == nil && ser.InflowM3s != nil)
+		writeDemoTank(&yaml, spec, ds, file, loader != nil, ser.InflowM3s != nil)
 	}
 	fmt.Fprintf(&yaml, "\noutputs:\n  directory: .\n  state_file: state.db\n")
 	cfgPath := filepath.Join(*outDir, "demo.yaml")

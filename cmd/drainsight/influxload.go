@@ -25,10 +25,17 @@ func newDemoLoader(url, bucket, org, token string) (*demoLoader, error) {
 	return &demoLoader{c: c}, nil
 }
 
-// load writes one tank's readings (inflow is not loaded: the InfluxDB source
-// reads the level field only).
-func (l *demoLoader) load(ctx context.Context, tank string, timesNs []int64, readings, _ []float64) error {
-	return l.c.WriteLevels(ctx, "tank_level", "level", "tank", tank, timesNs, readings)
+// load writes one tank's readings, and its metered inflow in L/s (the unit
+// the demo config gives the meter) when it has one.
+func (l *demoLoader) load(ctx context.Context, tank string, timesNs []int64, readings, inflowM3s []float64) error {
+	if inflowM3s == nil {
+		return l.c.WriteLevels(ctx, "tank_level", "level", "tank", tank, timesNs, readings)
+	}
+	ls := make([]float64, len(inflowM3s))
+	for i, q := range inflowM3s {
+		ls[i] = q * 1000
+	}
+	return l.c.WriteLevelsInflow(ctx, "tank_level", "level", "inflow", "tank", tank, timesNs, readings, ls)
 }
 
 func (l *demoLoader) Close() { l.c.Close() }

@@ -23,8 +23,10 @@ type influxTank struct {
 	run    *tankRun
 	fromNs int64
 	lastNs int64 // newest sample pulled (the pull goroutine's own)
-	out    tankOutcome
-	failed bool
+	// inflowM3s is the meter's last reading (NaN before the first).
+	inflowM3s float64
+	out       tankOutcome
+	failed    bool
 }
 
 // pulledWindow is one window's samples per tank, or the error that stopped it.
@@ -69,7 +71,19 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		return fail(fmt.Errorf("site %q has no influx settings", siteID))
 	}
 	ix := site.Influx
-	src, err := c.Source(influx.SeriesSpec{Measurement: ix.Measurement, Field: ix.Field, TankTag: ix.TankTag})
+	// Tanks with an inflow meter read its field beside the level (one field
+	// name per site: the first metered tank's).
+	inflowField := ""
+	for _, p := range plans {
+		if m := p.cfg.Sensor.Inflow; m != nil && p.conv.InflowToSI > 0 {
+			if inflowField == "" {
+				inflowField = m.Field
+			} else if m.Field != inflowField {
+				j.log.Warn("tanks of one site name different inflow fields; using the first", "site", siteID, "field", inflowField, "tank", p.cfg.ID)
+			}
+		}
+	}
+	src, err := c.Source(influx.SeriesSpec{Measurement: ix.Measurement, Field: ix.Field, TankTag: ix.TankTag, InflowField: inflowField})
 	if err != nil {
 		return fail(err)
 	}
@@ -83,7 +97,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	var ids []string
 	for _, p := range plans {
 		run, from, err := openTankRun(j.st, p, j.log)
-		t := &influxTank{p: p, run: run, out: tankOutcome{tank: p.cfg.ID}}
+		t := &influxTank{p: p, run: run, out: tankOutcome{tank: p.cfg.ID}, inflowM3s: math.NaN()}
 		switch {
 		case err != nil:
 			t.out.err, t.failed = err, true
@@ -118,7 +132,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				return
 			}
 			pw := pulledWindow{wi: wi, w: w, bufs: make(map[string]*model.Series, len(pullIDs))}
-			_, pw.err = src.Pull(pctx, pullIDs, w[0], w[1], func(tank string, tNs int64, v float64) {
+			_, pw.err = src.PullWithInflow(pctx, pullIDs, w[0], w[1], func(tank string, tNs int64, v, q float64) {
 				t := byID[tank]
 				if t == nil || tNs < t.fromNs || tNs <= t.lastNs {
 					return
@@ -134,6 +148,13 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 					pw.bufs[tank] = b
 				}
 				b.Append(tNs, h)
+				if f := t.p.conv.InflowToSI; f > 0 {
+					// Sample-and-hold of the meter, as for files.
+					if !math.IsNaN(q) {
+						t.inflowM3s = q * f
+					}
+					b.InflowM3s = append(b.InflowM3s, t.inflowM3s)
+				}
 			})
 			select {
 			case ch <- pw:
