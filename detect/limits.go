@@ -6,22 +6,27 @@ import (
 )
 
 // Chart limits are pure functions of (k or λ, ARL0) but cost a few
-// milliseconds each, so they are memoised. The ARL0 is rounded to two
-// significant digits first, so a result never depends on what was cached
-// before. The cache is safe for concurrent use.
+// milliseconds each, so they are memoised. The ARL0 is first rounded up to a
+// fixed grid of 20 points per decade, so a result never depends on what was
+// cached before, a fleet of tanks with slightly different drain frequencies
+// shares a handful of limits, and the false-alarm rate is never more than
+// the one asked for (the in-control ARL is at most 12 % longer, which delays
+// detection by a fraction of a drain). The cache is safe for concurrent use.
 var limitCache = struct {
 	sync.Mutex
 	m map[[3]float64]float64
 }{m: map[[3]float64]float64{}}
 
-// roundARL rounds an ARL0 to two significant digits (at most 5 % away), so
-// that the drain frequency's day-to-day wobble does not recompute limits.
+// arlGridPerDecade is the density of the ARL0 grid.
+const arlGridPerDecade = 20
+
+// roundARL rounds an ARL0 up to the next point 10^(i/20) of the grid.
 func roundARL(x float64) float64 {
 	if x <= 0 || math.IsInf(x, 0) || math.IsNaN(x) {
 		return x
 	}
-	p := math.Pow(10, 1-math.Floor(math.Log10(x)))
-	return math.Round(x*p) / p
+	i := math.Ceil(math.Log10(x)*arlGridPerDecade - 1e-9)
+	return math.Pow(10, i/arlGridPerDecade)
 }
 
 func cachedLimit(kind, param, arl0 float64, f func(param, arl0 float64) float64) float64 {

@@ -94,3 +94,18 @@ func TestFitShape(t *testing.T) {
 		t.Errorf("ramp data: %+v, want ramp preferred at 20 with slope 0.2", r)
 	}
 }
+
+// TestRoundARLUpOnGrid: the cached limits use an ARL0 never below the one
+// asked for (the stated false-alarm rate is an upper bound) and at most one
+// grid step (10^(1/20), 12.2 %) above it.
+func TestRoundARLUpOnGrid(t *testing.T) {
+	for _, x := range []float64{2, 9.99, 10, 123.4, 1000, 1825, 3652.5, 7.3e4, 1e6} {
+		got := roundARL(x)
+		if got < x*(1-1e-12) || got > x*math.Pow(10, 1.0/20)*(1+1e-12) {
+			t.Errorf("roundARL(%g) = %g, want in [x, 1.122 x]", x, got)
+		}
+		if again := roundARL(got); math.Abs(again/got-1) > 1e-12 {
+			t.Errorf("roundARL not idempotent at %g: %g", got, again)
+		}
+	}
+}
