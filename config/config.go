@@ -36,7 +36,7 @@ type Influx struct {
 	Measurement         string        // default "tank_level"
 	Field               string        // default "level"
 	TankTag             string        // default "tank"
-	SiteTag             string        // default "site"
+	SiteTag             string        // default "": no filter; else only points whose tag SiteTag equals the site id are read
 	QueryWindow         time.Duration // default 24 h: the time span of one query
 	Timeout             time.Duration // default 30 s: per query or write
 	FitsMeasurement     string        // default "outlet_fit": write-back of drain fits

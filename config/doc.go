@@ -30,7 +30,7 @@
 //	    measurement              (tank_level)
 //	    field                    (level)
 //	    tank_tag                 (tank)
-//	    site_tag                 (site)
+//	    site_tag                 (none) read only points whose tag of this name equals the site id
 //	    query_window             (24 h) span of one query
 //	    timeout                  (30 s) per query or write
 //	    fits_measurement         (outlet_fit) write-back of fits

@@ -194,7 +194,7 @@ func (d *decoder) influx(n *yaml.Node, path string) *Influx {
 		Measurement:         f.str("measurement", "tank_level"),
 		Field:               f.str("field", "level"),
 		TankTag:             f.str("tank_tag", "tank"),
-		SiteTag:             f.str("site_tag", "site"),
+		SiteTag:             f.str("site_tag", ""),
 		QueryWindow:         quantity(f, "query_window", 24*time.Hour, ParseDuration, positiveDuration),
 		Timeout:             quantity(f, "timeout", 30*time.Second, ParseDuration, positiveDuration),
 		FitsMeasurement:     f.str("fits_measurement", "outlet_fit"),

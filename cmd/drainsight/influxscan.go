@@ -83,7 +83,11 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			}
 		}
 	}
-	src, err := c.Source(influx.SeriesSpec{Measurement: ix.Measurement, Field: ix.Field, TankTag: ix.TankTag, InflowField: inflowField})
+	spec := influx.SeriesSpec{Measurement: ix.Measurement, Field: ix.Field, TankTag: ix.TankTag, InflowField: inflowField}
+	if ix.SiteTag != "" {
+		spec.Tags = map[string]string{ix.SiteTag: siteID}
+	}
+	src, err := c.Source(spec)
 	if err != nil {
 		return fail(err)
 	}
