@@ -21,7 +21,6 @@ const firstScanHistory = 7 * 24 * time.Hour
 type influxTank struct {
 	p      *plan
 	run    *tankRun
-	fromNs int64
 	lastNs int64 // newest sample pulled (the pull goroutine's own)
 	// inflowM3s is the meter's last reading (NaN before the first).
 	inflowM3s float64
@@ -111,7 +110,6 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			from = now.Add(-firstScanHistory).UnixNano()
 		}
 		if !t.failed {
-			t.fromNs = from
 			run.fromNs, run.limitNs = from, now.UnixNano()
 			startNs = min(startNs, from)
 			ids = append(ids, p.cfg.ID)
@@ -138,7 +136,8 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			pw := pulledWindow{wi: wi, w: w, bufs: make(map[string]*model.Series, len(pullIDs))}
 			_, pw.err = src.PullWithInflow(pctx, pullIDs, w[0], w[1], func(tank string, tNs int64, v, q float64) {
 				t := byID[tank]
-				if t == nil || tNs < t.fromNs || tNs <= t.lastNs {
+				// Samples before the tank's own start are dropped by feed.
+				if t == nil || tNs <= t.lastNs {
 					return
 				}
 				h := t.p.conv.Sensor.HeadM(v, t.p.conv.OutletElevM)
