@@ -67,3 +67,46 @@ func FuzzParseQuantity(f *testing.F) {
 		}
 	})
 }
+
+// FuzzReadTable: no input panics the table reader; every row it returns is
+// finite with a line after the header and in file order, and every problem
+// names the file.
+func FuzzReadTable(f *testing.F) {
+	for _, s := range []string{
+		"level_m,volume_m3\n0,0\n1,2\n",
+		"\ufeff# survey\nlevel_mm, volume_US_gal\r\n0,0\r\n500,120\r\n",
+		"reading_mA,level_m\n4,0\n20,3.2\n",
+		"reading,pressure_kPa\n4,0\n\"20\",50\n",
+		"level_m,volume_bbl\n1,\"2\n",
+		"level_m,volume_L\n1e308,1e308\n-0,0x10\n",
+		"level,volume\n",
+		"",
+	} {
+		f.Add([]byte(s))
+	}
+	cols := [][2]column{
+		{{name: "level", units: lengthUnits}, {name: "volume", units: volumeUnits}},
+		{{name: "reading", label: "mA"}, {name: "level", units: lengthUnits}},
+		{{name: "reading"}, {name: "pressure", units: pressureUnits}},
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		for _, c := range cols {
+			rows, probs := readTable(data, "fuzz.csv", c)
+			prev := 0
+			for _, r := range rows {
+				if math.IsNaN(r.a) || math.IsInf(r.a, 0) || math.IsNaN(r.b) || math.IsInf(r.b, 0) {
+					t.Fatalf("row %+v is not finite", r)
+				}
+				if r.line <= prev || r.line < 2 {
+					t.Fatalf("row %+v: line not after %d", r, prev)
+				}
+				prev = r.line
+			}
+			for _, p := range probs {
+				if !strings.HasPrefix(p, "fuzz.csv") {
+					t.Fatalf("problem %q does not name the file", p)
+				}
+			}
+		}
+	})
+}

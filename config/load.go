@@ -1,11 +1,8 @@
 package config
 
 import (
-	"bytes"
-	"encoding/csv"
 	"errors"
 	"fmt"
-	"io"
 	"net/url"
 	"os"
 	"path/filepath"
@@ -383,57 +380,37 @@ type where struct {
 }
 
 // strappingFile reads a CSV whose header names the units, such as
-// "level_m,volume_m3" or "level_mm,volume_L", one point per row.
+// "level_m,volume_m3" or "level_mm,volume_US_gal", one point per row.
 func (d *decoder) strappingFile(f *fields, path string) ([]StrappingPoint, []where) {
 	name, n, _ := f.scalar("file")
-	full := d.resolve(name)
-	data, err := d.readFile(full)
-	if err != nil {
-		d.add(path, n, "cannot read the strapping table: %v", errors.Unwrap(err))
+	data, ok := d.tableFile(name, n, path, "strapping table")
+	if !ok {
 		return nil, nil
 	}
-	r := csv.NewReader(bytes.NewReader(data))
-	r.FieldsPerRecord = 2
-	r.TrimLeadingSpace = true
-	r.Comment = '#'
-	head, err := r.Read()
-	if err != nil {
-		d.add(path, n, "%s: no header line level_<unit>,volume_<unit>", name)
-		return nil, nil
+	rows, probs := readTable(data, name, [2]column{{name: "level", units: lengthUnits}, {name: "volume", units: volumeUnits}})
+	for _, p := range probs {
+		d.add(path, n, "%s", p)
 	}
-	lu, lok := strings.CutPrefix(strings.TrimSpace(head[0]), "level_")
-	vu, vok := strings.CutPrefix(strings.TrimSpace(head[1]), "volume_")
-	lf, lk := lengthUnits[lu]
-	vf, vk := volumeUnits[vu]
-	if !lok || !vok || !lk || !vk {
-		d.add(path, n, "%s:1: header must be level_<unit>,volume_<unit> such as level_m,volume_m3", name)
-		return nil, nil
-	}
-	var pts []StrappingPoint
-	var at []where
-	for {
-		rec, err := r.Read()
-		if errors.Is(err, io.EOF) {
-			break
-		}
-		line, _ := r.FieldPos(0)
-		if err != nil {
-			d.add(path, n, "%s: %v", name, err)
-			if _, ok := err.(*csv.ParseError); !ok {
-				break
-			}
-			continue
-		}
-		lv, err1 := parseNumber(rec[0])
-		vol, err2 := parseNumber(rec[1])
-		if err1 != nil || err2 != nil {
-			d.add(path, n, "%s:%d: want two plain numbers", name, line)
-			continue
-		}
-		pts = append(pts, StrappingPoint{lv * lf, vol * vf})
-		at = append(at, where{path, n, fmt.Sprintf("%s:%d: ", name, line)})
+	pts := make([]StrappingPoint, len(rows))
+	at := make([]where, len(rows))
+	for i, r := range rows {
+		pts[i] = StrappingPoint{r.a, r.b}
+		at[i] = where{path, n, fmt.Sprintf("%s:%d: ", name, r.line)}
 	}
 	return pts, at
+}
+
+// tableFile reads the table file named at node n (what names its kind).
+func (d *decoder) tableFile(name string, n *yaml.Node, path, what string) ([]byte, bool) {
+	data, err := d.readFile(d.resolve(name))
+	if err != nil {
+		if u := errors.Unwrap(err); u != nil {
+			err = u
+		}
+		d.add(path, n, "cannot read the %s: %v", what, err)
+		return nil, false
+	}
+	return data, true
 }
 
 func (d *decoder) checkStrapping(pts []StrappingPoint, at []where, f *fields) {

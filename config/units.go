@@ -26,6 +26,16 @@ const (
 	WaterDensity = 998.2067 // kg/m^3, air-free water at 20 °C, Tanaka et al. (2001), Metrologia 38:301
 )
 
+// Volume factors for strapping tables, to m^3. NIST SP 811 (2008) Appendix
+// B.8 gives them rounded to 7 digits; the exact values are by definition.
+const (
+	CubicCentimetreM3 = 1e-6           // 1 cm^3 = 1e-6 m^3, exact (SI prefix)
+	USGallonM3        = 3.785411784e-3 // 1 US gal = 231 in^3 = 3.785411784 L, exact (NIST SP 811 B.8 lists 3.785 412 E-03 m^3)
+	ImperialGallonM3  = 4.54609e-3     // 1 imp gal = 4.54609 L, exact by the UK Weights and Measures Act 1985 (NIST SP 811 B.8: 4.546 09 E-03 m^3)
+	CubicFootM3       = 0.028316846592 // 1 ft^3 = 0.3048^3 m^3, exact (NIST SP 811 B.8 lists 2.831 685 E-02 m^3)
+	BarrelM3          = 0.158987294928 // 1 bbl (petroleum) = 42 US gal, exact (NIST SP 811 B.8 lists 1.589 873 E-01 m^3)
+)
+
 // Unit tables: the accepted spellings and their factor to SI.
 var (
 	lengthUnits = map[string]float64{
@@ -46,8 +56,12 @@ var (
 		"L/s": LitreM3, "l/s": LitreM3, "L/min": LitreM3 / 60, "l/min": LitreM3 / 60,
 		"L/h": LitreM3 / 3600, "l/h": LitreM3 / 3600,
 	}
+	// Spellings with a space also take "_" for CSV headers (volume_US_gal).
 	volumeUnits = map[string]float64{
 		"m3": 1, "m^3": 1, "m³": 1, "L": LitreM3, "l": LitreM3,
+		"cm3": CubicCentimetreM3, "cm^3": CubicCentimetreM3, "cm³": CubicCentimetreM3, "mL": CubicCentimetreM3,
+		"US gal": USGallonM3, "US_gal": USGallonM3, "imp gal": ImperialGallonM3, "imp_gal": ImperialGallonM3,
+		"ft3": CubicFootM3, "ft^3": CubicFootM3, "ft³": CubicFootM3, "bbl": BarrelM3,
 	}
 	durationUnits = map[string]float64{ // seconds
 		"ms": 1e-3, "s": 1, "min": 60, "h": 3600, "d": 86400, "w": 7 * 86400, "y": JulianYearS,
@@ -144,8 +158,24 @@ func ParseDensity(s string) (float64, error) {
 // m3/min, m3/h, L/s, L/min, L/h (also with ^3 or ³, and a lower-case l).
 func ParseFlow(s string) (float64, error) { return parseWith(s, "flow", "2.5 L/s", flowUnits) }
 
-// ParseVolume reads a volume ("1.2 m3", "850 L") and returns m^3.
-func ParseVolume(s string) (float64, error) { return parseWith(s, "volume", "1.2 m3", volumeUnits) }
+// ParseVolume reads a volume ("1.2 m3", "850 L", "300 US gal") and returns
+// m^3. Units: m3 (also m^3, m³), L (l), cm3 (cm^3, cm³, mL), US gal, imp gal
+// (or US_gal, imp_gal), ft3 (ft^3, ft³) and bbl (the 42 US gal oil barrel);
+// a bare "gal" is refused as ambiguous.
+func ParseVolume(s string) (float64, error) {
+	if _, unit, err := splitQuantity(s); err == nil && isBareGallon(unit) {
+		return 0, fmt.Errorf("volume %q: %q is ambiguous: write US gal or imp gal", s, unit)
+	}
+	return parseWith(s, "volume", "1.2 m3", volumeUnits)
+}
+
+func isBareGallon(unit string) bool {
+	switch unit {
+	case "gal", "gallon", "gallons", "Gal":
+		return true
+	}
+	return false
+}
 
 // ParseOutletConstant reads K in m^2.5/s; the unit may be left out.
 func ParseOutletConstant(s string) (float64, error) {

@@ -60,6 +60,22 @@ func TestParseQuantities(t *testing.T) {
 		{"flow unknown", ParseFlow, "1 gpm", 0, true},
 		{"volume L", ParseVolume, "850 L", 0.85, false},
 		{"volume m3", ParseVolume, "1.2 m3", 1.2, false},
+		// 1 cm^3 = 1e-6 m^3 exactly (SI prefix); 1 mL = 1 cm^3 exactly.
+		{"volume cm3", ParseVolume, "2500 cm3", 0.0025, false},
+		{"volume mL", ParseVolume, "2500 mL", 0.0025, false},
+		// 1 US gal = 231 in^3 = 3.785411784 L exactly (NIST SP 811 B.8); 300 US gal = 1.1356235352 m^3 (computed).
+		{"volume US gal", ParseVolume, "300 US gal", 1.1356235352, false},
+		{"volume US_gal", ParseVolume, "300 US_gal", 1.1356235352, false},
+		// 1 imp gal = 4.54609 L exactly (UK Weights and Measures Act 1985); 300 imp gal = 1.363827 m^3 (computed).
+		{"volume imp gal", ParseVolume, "300 imp gal", 1.363827, false},
+		{"volume imp_gal", ParseVolume, "300 imp_gal", 1.363827, false},
+		// 1 ft^3 = 0.3048^3 = 0.028316846592 m^3 exactly (NIST SP 811 B.8); 100 ft^3 = 2.8316846592 m^3 (computed).
+		{"volume ft3", ParseVolume, "100 ft3", 2.8316846592, false},
+		{"volume ft^3", ParseVolume, "100 ft^3", 2.8316846592, false},
+		// 1 bbl (petroleum) = 42 US gal = 0.158987294928 m^3 exactly (NIST SP 811 B.8); 10 bbl = 1.58987294928 m^3 (computed).
+		{"volume bbl", ParseVolume, "10 bbl", 1.58987294928, false},
+		{"volume bare gal is ambiguous", ParseVolume, "300 gal", 0, true},
+		{"volume unknown", ParseVolume, "3 hogshead", 0, true},
 		{"K with unit", ParseOutletConstant, "0.0021 m^2.5/s", 0.0021, false},
 		{"K bare", ParseOutletConstant, "0.0021", 0.0021, false},
 		{"K wrong unit", ParseOutletConstant, "0.0021 L/s", 0, true},
@@ -129,6 +145,31 @@ func TestCheckCron(t *testing.T) {
 	for _, tc := range tests {
 		if err := checkCron(tc.spec); (err == nil) != tc.ok {
 			t.Errorf("checkCron(%q) = %v, want ok %v", tc.spec, err, tc.ok)
+		}
+	}
+}
+
+// TestVolumeFactors cross-checks the exact volume factors against their
+// definitions: 1 US gal = 231 in^3 and 1 bbl = 42 US gal (NIST SP 811 B.8),
+// 1 ft^3 = (0.3048 m)^3 (computed), and against the 7-digit values NIST SP 811
+// B.8 prints.
+func TestVolumeFactors(t *testing.T) {
+	tests := []struct {
+		name       string
+		got, exact float64
+		nist7      float64
+	}{
+		{"US gal = 231 in^3", USGallonM3, 231 * InchM * InchM * InchM, 3.785412e-3},
+		{"imp gal", ImperialGallonM3, 4.54609e-3, 4.54609e-3},
+		{"ft^3 = 0.3048^3 m^3", CubicFootM3, FootM * FootM * FootM, 2.831685e-2},
+		{"bbl = 42 US gal", BarrelM3, 42 * USGallonM3, 1.589873e-1},
+	}
+	for _, tc := range tests {
+		if math.Abs(tc.got-tc.exact) > 1e-15*tc.exact {
+			t.Errorf("%s: %.15g, want %.15g", tc.name, tc.got, tc.exact)
+		}
+		if math.Abs(tc.got-tc.nist7) > 5e-7*tc.nist7 {
+			t.Errorf("%s: %.15g differs from the NIST SP 811 value %g beyond its rounding", tc.name, tc.got, tc.nist7)
 		}
 	}
 }
