@@ -122,14 +122,49 @@ const (
 // documented in package ingest (Sensor).
 type Sensor struct {
 	Kind SensorKind
-	Unit string // as written: m, cm, mm, ft, in, percent; Pa, hPa, kPa, MPa, mbar, bar, psi, mH2O, cmH2O, mmH2O
+	// Unit as written: m, cm, mm, ft, in, percent; Pa, hPa, kPa, MPa, mbar,
+	// bar, psi, mH2O, cmH2O, mmH2O; with a Calibration, the name of the raw
+	// reading (mA, V, counts, ...).
+	Unit string
 	// UnitToSI is metres (depth) or pascals (pressure) per reading unit; 0
-	// for percent, where SpanM applies.
+	// for percent, where SpanM applies, and with a Calibration.
 	UnitToSI    float64
-	SpanM       float64 // percent only: the level at 100 %, m
-	ZeroOffset  float64 // reading at zero level, in the sensor's unit; default 0
-	DensityKgM3 float64 // default 998.2067 (water at 20 °C); used by pressure sensors
+	SpanM       float64      // percent only: the level at 100 %, m
+	ZeroOffset  float64      // reading at zero level, in the sensor's unit; default 0; 0 with a Calibration
+	DensityKgM3 float64      // default 998.2067 (water at 20 °C); used by pressure sensors
+	Calibration *Calibration // raw transmitter signals only; nil otherwise
 	Inflow      *InflowMeter
+}
+
+// Calibration converts a raw transmitter reading (in Sensor.Unit: mA, V,
+// counts, ...) to the level above the vessel bottom (depth sensors, m) or
+// the gauge pressure (pressure sensors, Pa). It is the line GainSI·reading +
+// OffsetSI when Points is empty, else the points: two give the straight line
+// through them, more a table interpolated monotonically (see ingest
+// Calibration; readings beyond the table are extrapolated along its end
+// segments).
+type Calibration struct {
+	GainSI   float64            // m or Pa per reading unit, not 0; 0 with Points
+	OffsetSI float64            // m or Pa at reading 0; default 0
+	Points   []CalibrationPoint // in the order written: at least 2, readings and values each strictly monotone
+	File     string             // the table file the points came from (resolved), or ""
+}
+
+// CalibrationPoint is one row of a calibration: a raw reading and the level
+// (m) or pressure (Pa) it stands for.
+type CalibrationPoint struct {
+	Reading float64
+	ValueSI float64
+}
+
+// Table returns the points as two slices, readings and values.
+func (c *Calibration) Table() (readings, valuesSI []float64) {
+	readings = make([]float64, len(c.Points))
+	valuesSI = make([]float64, len(c.Points))
+	for i, p := range c.Points {
+		readings[i], valuesSI[i] = p.Reading, p.ValueSI
+	}
+	return readings, valuesSI
 }
 
 // InflowMeter is an optional meter of the flow into the tank.

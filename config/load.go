@@ -481,7 +481,24 @@ func (d *decoder) sensor(n *yaml.Node, path string, parent *fields) Sensor {
 	if n != nil && un == nil {
 		d.add(path+".unit", f.at(), "required")
 	}
+	raw := f.has("calibration")
 	switch {
+	case raw:
+		if ok && !readingLabel.MatchString(unit) {
+			d.add(path+".unit", un, "%q: with a calibration, name the raw reading with letters such as mA, V or counts (no spaces, '/' or ',')", unit)
+			ok = false
+		}
+		if ok {
+			s.Unit = unit
+		}
+		s.Calibration = d.calibration(f.get("calibration"), path+".calibration", s.Kind, s.Unit)
+		if zn := f.get("zero_offset"); zn != nil {
+			d.add(path+".zero_offset", zn, "does not apply with a calibration: the calibration says what the empty vessel reads")
+			s.ZeroOffset = 0
+		}
+		if sn := f.get("span"); sn != nil {
+			d.add(path+".span", sn, "does not apply with a calibration (a percent reading with a calibration is converted by the calibration)")
+		}
 	case !ok:
 	case s.Kind == Depth && (unit == "percent" || unit == "%"):
 		s.Unit = "percent"
@@ -502,7 +519,7 @@ func (d *decoder) sensor(n *yaml.Node, path string, parent *fields) Sensor {
 			d.add(path+".unit", un, "unknown pressure unit %q (want one of %s)", unit, unitList(pressureUnits))
 		}
 	}
-	if s.Unit != "percent" && f.has("span") {
+	if !raw && s.Unit != "percent" && f.has("span") {
 		d.add(path+".span", f.get("span"), "applies to percent sensors only")
 	}
 	if f.has("inflow") {
@@ -510,6 +527,188 @@ func (d *decoder) sensor(n *yaml.Node, path string, parent *fields) Sensor {
 	}
 	f.done()
 	return s
+}
+
+// readingLabel is the name of a raw reading: a word that cannot be taken
+// for a number or a unit fraction ("mA", "V", "counts", "%").
+var readingLabel = regexp.MustCompile(`^[A-Za-zµ%][A-Za-z0-9µ%_.\-]*$`)
+
+// calibration reads a raw sensor's calibration: gain (with offset), points
+// or file. Values are lengths for depth sensors and pressures for pressure
+// sensors; label is the sensor's unit ("" when it is missing or bad).
+func (d *decoder) calibration(n *yaml.Node, path string, kind SensorKind, label string) *Calibration {
+	f := d.mapping(n, path)
+	c := &Calibration{}
+	what, parse, units := "level", ParseLength, lengthUnits
+	if kind == Pressure {
+		what, parse, units = "pressure", ParsePressure, pressureUnits
+	}
+	forms := []string{}
+	for _, k := range []string{"gain", "points", "file"} {
+		if f.has(k) {
+			forms = append(forms, k)
+		}
+	}
+	if f.has("offset") && !f.has("gain") {
+		d.add(path+".offset", f.get("offset"), "applies with gain only")
+	}
+	switch {
+	case len(forms) == 0:
+		if m := deref(n); m != nil && m.Kind == yaml.MappingNode {
+			d.add(path, m, "give gain (and offset), points or file")
+		}
+		f.done()
+		return c
+	case len(forms) > 1:
+		d.add(join(path, forms[1]), f.get(forms[1]), "give one of gain (with offset), points or file, not %s", strings.Join(forms, " and "))
+		f.done()
+		return c
+	case kind == "":
+		f.get("offset")
+		f.done()
+		return c // the kind is reported already; the values cannot be read
+	}
+	var at []where
+	before := len(d.problems)
+	switch forms[0] {
+	case "gain":
+		g, gn, _ := f.scalar("gain")
+		if gn != nil && gn.Kind == yaml.ScalarNode {
+			v, err := parseGain(g, label, what, parse)
+			switch {
+			case err != nil:
+				d.add(path+".gain", gn, "%v", err)
+			case v == 0:
+				d.add(path+".gain", gn, "must not be 0")
+			default:
+				c.GainSI = v
+			}
+		}
+		c.OffsetSI = quantity(f, "offset", 0, parse, nil)
+		if c.GainSI == 0 {
+			f.done()
+			return nil
+		}
+	case "points":
+		c.Points, at = d.calibrationPoints(f, path+".points", what, parse, label)
+	case "file":
+		name, fn, ok := f.scalar("file")
+		if !ok {
+			break
+		}
+		c.File = d.resolve(name)
+		data, ok := d.tableFile(name, fn, path+".file", "calibration table")
+		if !ok {
+			break
+		}
+		rows, probs := readTable(data, name, [2]column{{name: "reading", label: label}, {name: what, units: units}})
+		for _, p := range probs {
+			d.add(path+".file", fn, "%s", p)
+		}
+		for _, r := range rows {
+			c.Points = append(c.Points, CalibrationPoint{r.a, r.b})
+			at = append(at, where{path + ".file", fn, fmt.Sprintf("%s:%d: ", name, r.line)})
+		}
+		if len(rows) == 0 && len(probs) > 0 {
+			f.done()
+			return nil
+		}
+	}
+	if forms[0] != "gain" && !d.checkCalibration(c.Points, at, f, forms[0], what, len(d.problems) > before) {
+		f.done()
+		return nil
+	}
+	f.done()
+	return c
+}
+
+// parseGain reads a gain such as "0.2 m", "0.2 m/mA" or "3.125 kPa/mA": the
+// level or pressure per reading unit; a "/unit" must name the sensor's unit.
+func parseGain(s, label, what string, parse func(string) (float64, error)) (float64, error) {
+	if i := strings.LastIndex(s, "/"); i >= 0 {
+		per := strings.TrimSpace(s[i+1:])
+		if per != label {
+			return 0, fmt.Errorf("gain %q is per %q, but the sensor's unit is %q (write the %s per reading unit, such as \"0.2 m/%s\")", s, per, label, what, label)
+		}
+		s = s[:i]
+	}
+	return parse(s)
+}
+
+// calibrationPoints reads [[4 mA, 0 m], [20 mA, 3.2 m], ...]; the reading may
+// be a bare number or carry the sensor's unit.
+func (d *decoder) calibrationPoints(f *fields, path, what string, parse func(string) (float64, error), label string) ([]CalibrationPoint, []where) {
+	var pts []CalibrationPoint
+	var at []where
+	example := fmt.Sprintf("want a pair [reading, %s] such as [4 %s, 0 m]", what, label)
+	if what == "pressure" {
+		example = fmt.Sprintf("want a pair [reading, %s] such as [4 %s, 0 kPa]", what, label)
+	}
+	for i, n := range f.list("points") {
+		p := fmt.Sprintf("%s[%d]", path, i)
+		if n == nil || n.Kind != yaml.SequenceNode || len(n.Content) != 2 {
+			d.add(p, n, "%s", example)
+			continue
+		}
+		a, b := deref(n.Content[0]), deref(n.Content[1])
+		if a == nil || b == nil || a.Kind != yaml.ScalarNode || b.Kind != yaml.ScalarNode {
+			d.add(p, n, "%s", example)
+			continue
+		}
+		r, u, err1 := splitQuantity(a.Value)
+		if err1 == nil && u != "" && u != label {
+			err1 = fmt.Errorf("%q is not in the sensor's unit %q", a.Value, label)
+		}
+		v, err2 := parse(b.Value)
+		if err1 != nil {
+			d.add(p, a, "reading: %v", err1)
+		}
+		if err2 != nil {
+			d.add(p, b, "%s: %v", what, err2)
+		}
+		if err1 == nil && err2 == nil {
+			pts = append(pts, CalibrationPoint{r, v})
+			at = append(at, where{p, n, ""})
+		}
+	}
+	return pts, at
+}
+
+// checkCalibration reports a table with fewer than 2 points (unless rows
+// were already reported) or whose readings or values are not strictly
+// monotone (each direction set by its first two points); it returns whether
+// the points are usable.
+func (d *decoder) checkCalibration(pts []CalibrationPoint, at []where, f *fields, key, what string, rowsReported bool) bool {
+	if len(pts) < 2 {
+		if !rowsReported {
+			d.add(join(f.path, key), f.get(key), "a calibration table needs at least 2 points")
+		}
+		return false
+	}
+	si := "m"
+	if what == "pressure" {
+		si = "Pa"
+	}
+	dir := func(a, b float64) string {
+		if b > a {
+			return "increasing"
+		}
+		return "decreasing"
+	}
+	good := true
+	rDir, vDir := dir(pts[0].Reading, pts[1].Reading), dir(pts[0].ValueSI, pts[1].ValueSI)
+	for i := 1; i < len(pts); i++ {
+		p, q, w := pts[i-1], pts[i], at[i]
+		if q.Reading == p.Reading || dir(p.Reading, q.Reading) != rDir {
+			d.add(w.path, w.node, "%sreadings must be strictly monotone: %g after %g breaks the %s order set by the first two points", w.prefix, q.Reading, p.Reading, rDir)
+			good = false
+		}
+		if q.ValueSI == p.ValueSI || dir(p.ValueSI, q.ValueSI) != vDir {
+			d.add(w.path, w.node, "%s%ss must be strictly monotone: %g %s after %g %s breaks the %s order set by the first two points", w.prefix, what, q.ValueSI, si, p.ValueSI, si, vDir)
+			good = false
+		}
+	}
+	return good
 }
 
 func (d *decoder) inflow(n *yaml.Node, path string) *InflowMeter {
