@@ -66,6 +66,16 @@ func buildPlan(ct config.Tank) (*plan, error) {
 	if ct.Sensor.Kind == config.Pressure {
 		s.Kind = ingest.Pressure
 	}
+	if c := ct.Sensor.Calibration; c != nil { // a raw transmitter signal (mA, V, counts)
+		if len(c.Points) == 0 {
+			s.Calibration, err = ingest.NewLinearCalibration(c.GainSI, c.OffsetSI)
+		} else {
+			s.Calibration, err = ingest.NewTableCalibration(c.Table())
+		}
+		if err != nil {
+			return nil, fmt.Errorf("sensor.calibration: %w", err)
+		}
+	}
 	conv := ingest.Conversion{Sensor: s, OutletElevM: ct.Outlet.ElevationM}
 	if ct.Sensor.Inflow != nil {
 		conv.InflowToSI = ct.Sensor.Inflow.ToSI
