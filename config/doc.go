@@ -7,11 +7,13 @@
 // parsers are exported (ParseLength, ParsePressure, ParseDensity, ParseFlow,
 // ParseVolume, ParseDuration, ParseOutletConstant); their factors come from
 // NIST SP 811 (2008), Appendix B (see the constants FootM, InchM, PsiPa,
-// BarPa, MetreWaterPa, LitreM3). Durations use ms, s, min, h, d, w and y (the
-// Julian year, 365.25 d); "m" is refused as ambiguous.
+// BarPa, MetreWaterPa, LitreM3, USGallonM3, ImperialGallonM3, CubicFootM3,
+// BarrelM3). Durations use ms, s, min, h, d, w and y (the Julian year,
+// 365.25 d); "m" is refused as ambiguous.
 //
-// Relative paths (token_file, source paths, strapping files, outputs) are
-// resolved against the directory of the configuration file.
+// Relative paths (token_file, source paths, strapping and calibration
+// files, outputs) are resolved against the directory of the configuration
+// file.
 //
 // # Schema
 //
@@ -51,7 +53,9 @@
 //	                             cone_bottom_cylinder: diameter, height (total), cone_height < height
 //	                             strapping_table: points [[level, volume], ...] or file
 //	                               (CSV, header level_<unit>,volume_<unit>, e.g. level_m,volume_m3);
-//	                               at least 2 points, levels strictly increasing, volumes not falling
+//	                               at least 2 points, levels strictly increasing, volumes not falling;
+//	                               volume units m3 L cm3 mL "US gal" "imp gal" ft3 bbl (42 US gal),
+//	                               in a header US_gal, imp_gal; a bare "gal" is refused as ambiguous
 //	  outlet
 //	    diameter                 optional (unknown): the bore
 //	    elevation                above the vessel bottom, below the vessel height, or "unknown"
@@ -60,9 +64,21 @@
 //	  sensor
 //	    kind                     depth | pressure
 //	    unit                     depth: m cm mm km ft in, or percent (with span);
-//	                             pressure: Pa hPa kPa MPa mbar bar psi mH2O cmH2O mmH2O
+//	                             pressure: Pa hPa kPa MPa mbar bar psi mH2O cmH2O mmH2O;
+//	                             with a calibration: the raw reading's name (mA, V, counts, ...)
 //	    span                     percent only: the level at 100 %
-//	    zero_offset              (0) the reading at zero level, in the sensor's unit
+//	    zero_offset              (0) the reading at zero level, in the sensor's unit; not with a calibration
+//	    calibration              optional (none): a raw transmitter signal; exactly one of
+//	      gain                     level (depth) or pressure (pressure) per reading unit, not 0,
+//	                               e.g. "0.2 m/mA" or "0.2 m" ("/unit" must be the sensor's unit)
+//	      offset                   (0) with gain: the level or pressure at reading 0
+//	      points                   [[reading, level or pressure], ...], e.g. [[4 mA, 0 m], [20 mA, 3.2 m]];
+//	                               2 points: the straight line through them; 3 or more: a table
+//	      file                     a table as CSV, header reading or reading_<unit> (the sensor's),
+//	                               then level_<length unit> (depth) or pressure_<pressure unit>
+//	                             A table needs at least 2 points, readings and values each strictly
+//	                             increasing or strictly decreasing; it is interpolated by a monotone
+//	                             cubic and extrapolated along its end segments (see ingest.Calibration).
 //	    density                  (998.2067 kg/m3, water at 20 °C, Tanaka et al. 2001, Metrologia 38:301)
 //	    inflow                   optional meter: unit (m3/s m3/min m3/h L/s L/min L/h), field (inflow)
 //	  source

@@ -18,8 +18,8 @@ func TestLoadExample(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(c.Sites) != 1 || len(c.Tanks) != 4 {
-		t.Fatalf("%d sites, %d tanks; want 1 and 4", len(c.Sites), len(c.Tanks))
+	if len(c.Sites) != 1 || len(c.Tanks) != 7 {
+		t.Fatalf("%d sites, %d tanks; want 1 and 7", len(c.Sites), len(c.Tanks))
 	}
 	in := c.Sites[0].Influx
 	if in == nil || in.URL != "http://127.0.0.1:8086" || in.Bucket != "tanks/autogen" || in.TokenEnv != "DRAINSIGHT_INFLUX_TOKEN" ||
@@ -56,6 +56,22 @@ func TestLoadExample(t *testing.T) {
 		if math.Abs(ck.got-ck.want) > 1e-12 {
 			t.Errorf("%s = %.15g, want %g", ck.name, ck.got, ck.want)
 		}
+	}
+	// Raw transmitter signals (T5-T7) and a strapping file in US gallons (T6).
+	t5, t6, t7 := c.Tanks[4], c.Tanks[5], c.Tanks[6]
+	if cal := t5.Sensor.Calibration; t5.Sensor.Unit != "mA" || cal == nil || len(cal.Points) != 2 || cal.Points[1] != (CalibrationPoint{20, 3.2}) {
+		t.Errorf("T5 sensor = %+v, calibration %+v", t5.Sensor, cal)
+	}
+	if cal := t6.Sensor.Calibration; cal == nil || math.Abs(cal.GainSI-3125) > 1e-9 || math.Abs(cal.OffsetSI+12500) > 1e-9 || len(cal.Points) != 0 {
+		t.Errorf("T6 calibration = %+v, want gain 3125 Pa/mA, offset -12500 Pa", cal)
+	}
+	// 418 US gal = 418 · 3.785411784e-3 m^3 = 1.582302125712 m^3 (NIST SP 811 B.8; computed).
+	if st := t6.Geometry.Strapping; len(st) != 5 || math.Abs(st[4].LevelM-1.5) > 1e-12 || math.Abs(st[4].VolumeM3-1.582302125712) > 1e-12 {
+		t.Errorf("T6 strapping = %v", st)
+	}
+	if cal := t7.Sensor.Calibration; cal == nil || len(cal.Points) != 5 || cal.Points[4] != (CalibrationPoint{3900, 2.05}) ||
+		cal.File != filepath.Join("testdata", "tables", "t7-calibration.csv") {
+		t.Errorf("T7 calibration = %+v", cal)
 	}
 	if t2.Outlet.ElevationKnown || !t1.Outlet.ElevationKnown || !t3.Outlet.ElevationKnown {
 		t.Errorf("ElevationKnown: T1 %v, T2 %v, T3 %v; want true, false, true", t1.Outlet.ElevationKnown, t2.Outlet.ElevationKnown, t3.Outlet.ElevationKnown)
