@@ -23,6 +23,9 @@ func FuzzParse(f *testing.F) {
 	f.Add([]byte("a: &a [*a]\ntanks: *a\n"))
 	f.Add([]byte("outputs: {scan_schedule: 'CRON_TZ=UTC', report: {schedule: 'TZ='}}\n"))
 	f.Add([]byte("defaults: &d {defaults: *d}\n"))
+	f.Add([]byte("tanks: [{id: a, geometry: {shape: sphere, diameter: 2 m}, outlet: {elevation: 0}, source: {format: csv, paths: [a]}, " +
+		"sensor: {kind: depth, unit: mA, calibration: {points: [[4 mA, 0 m], [12, 1 m], [20 mA, 3 m]]}}}]\n"))
+	f.Add([]byte("tanks: [{id: a, sensor: {kind: pressure, unit: V, calibration: {gain: 2 kPa/V, offset: -1 kPa, file: x.csv}}}]\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		c, err := Parse(data, "fuzz/plant.yaml")
 		if err == nil {

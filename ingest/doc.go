@@ -38,7 +38,10 @@
 //	depth sensor:    L = (r - r0) · u                 (u in m per unit)
 //	percent of span: L = (r - r0) · S / 100           (S the span, m)
 //	pressure sensor: L = (r - r0) · u / (ρ g_n)       (u in Pa per unit)
+//	raw signal:      L = c(r), or c(r) / (ρ g_n) for a pressure transmitter
 //
+// where c is a Calibration (mA, V, counts: gain and offset, two points, or a
+// table interpolated by a monotone cubic and extrapolated beyond its ends)
 // and the head above the outlet is h = L - z_outlet. g_n = 9.80665 m/s^2
 // (exact, 3rd CGPM 1901); ρ defaults to water at 20 °C, 998.2067 kg/m^3
 // (Tanaka et al. 2001, Metrologia 38:301). Sensor.Reading is the inverse.
