@@ -298,23 +298,26 @@ func TestGrade(t *testing.T) {
 		reason string
 	}{
 		{"good", func(*Fit) {}, QualityA, ""},
-		{"rel SE B", func(f *Fit) { f.KSEM25s = 3e-5 }, QualityB, "relative SE"},
-		{"rel SE C", func(f *Fit) { f.KSEM25s = 1e-4 }, QualityC, "relative SE"},
-		{"rel SE reject", func(f *Fit) { f.KSEM25s = 5e-4 }, QualityReject, "relative SE"},
+		{"rel SE B", func(f *Fit) { f.KSEM25s = 3e-5 }, QualityB, "standard error 3 %"},
+		{"rel SE C", func(f *Fit) { f.KSEM25s = 1e-4 }, QualityC, "standard error 10 %"},
+		{"rel SE reject", func(f *Fit) { f.KSEM25s = 5e-4 }, QualityReject, "K is uncertain"},
 		{"few", func(f *Fit) { f.N = 20 }, QualityC, "few samples"},
 		{"too few", func(f *Fit) { f.N = 5 }, QualityReject, "too few samples"},
-		{"range sigma", func(f *Fit) { f.H1M = 1.99 }, QualityReject, "head range"},
-		{"range fraction", func(f *Fit) { f.H1M = 1.95 }, QualityC, "head range"},
-		{"exponent B", func(f *Fit) { f.Exponent = 0.56 }, QualityB, "exponent"},
-		{"exponent C", func(f *Fit) { f.Exponent = 0.65 }, QualityC, "exponent"},
-		{"exponent noisy", func(f *Fit) { f.Exponent, f.ExponentSE = 0.65, 0.1 }, QualityA, ""},
-		{"DW B", func(f *Fit) { f.DurbinWatson = 1.2 }, QualityB, "Durbin-Watson"},
-		{"DW C", func(f *Fit) { f.DurbinWatson = 0.5 }, QualityC, "Durbin-Watson"},
-		{"DW NaN", func(f *Fit) { f.DurbinWatson = math.NaN() }, QualityA, ""},
-		{"outliers B", func(f *Fit) { f.Outliers = 20 }, QualityB, "outlier fraction"},
-		{"outliers reject", func(f *Fit) { f.Outliers = 300 }, QualityReject, "outlier fraction"},
+		{"range sigma", func(f *Fit) { f.H1M = 1.99 }, QualityReject, "fell only"},
+		{"range fraction", func(f *Fit) { f.H1M = 1.95 }, QualityC, "covers only"},
+		// Real free outlets show exponents of 0.55-0.65 (issue 8): usable.
+		{"exponent 0.56", func(f *Fit) { f.Exponent = 0.56 }, QualityA, ""},
+		{"exponent 0.65", func(f *Fit) { f.Exponent = 0.65 }, QualityB, "square-root law: exponent 0.65"},
+		{"exponent 0.86 long pipe", func(f *Fit) { f.Exponent = 0.86 }, QualityC, "long pipe"},
+		{"exponent 0.38 into a tank", func(f *Fit) { f.Exponent = 0.28 }, QualityC, "vessel whose level rises"},
+		{"exponent noisy", func(f *Fit) { f.Exponent, f.ExponentSE = 0.8, 0.2 }, QualityA, ""},
+		// Durbin-Watson is reported, not graded.
+		{"DW 0.02", func(f *Fit) { f.DurbinWatson = 0.02 }, QualityA, ""},
+		{"gap inside", func(f *Fit) { f.Gaps = 1 }, QualityB, "data gap"},
+		{"outliers B", func(f *Fit) { f.Outliers = 20 }, QualityB, "outliers"},
+		{"outliers reject", func(f *Fit) { f.Outliers = 300 }, QualityReject, "outliers"},
 		{"negative K", func(f *Fit) { f.KM25s = -1e-3 }, QualityReject, "not positive"},
-		{"fallback", func(f *Fit) { f.Method = "wls-fallback" }, QualityC, "nonlinear stage failed"},
+		{"fallback", func(f *Fit) { f.Method = "wls-fallback" }, QualityC, "nonlinear fit failed"},
 	}
 	for _, tc := range tests {
 		f := good

@@ -123,6 +123,8 @@ type Fit struct {
 	Exponent      float64
 	ExponentSE    float64
 	DurbinWatson  float64
+	ResidualRho   float64 // lag-1 autocorrelation of the residuals, bias-corrected when significant; NaN when not computed
+	EffectiveN    int     // samples' worth of independent information after the serial correlation; N when white
 	DatumM        float64
 	Method        string
 	Quality       Quality
@@ -131,6 +133,7 @@ type Fit struct {
 	Cd            float64 // K/(a sqrt(2g)) when the outlet diameter is known, else NaN
 	Complete      bool
 	EmptyHeadM    float64 // copied from the segment; NaN unless Complete
+	Gaps          int     // data gaps inside the drain, copied from the segment
 }
 
 // IdleFit summarises an idle period: the level should be flat, and a fall
