@@ -133,7 +133,11 @@ type Sensor struct {
 	ZeroOffset  float64      // reading at zero level, in the sensor's unit; default 0; 0 with a Calibration
 	DensityKgM3 float64      // default 998.2067 (water at 20 °C); used by pressure sensors
 	Calibration *Calibration // raw transmitter signals only; nil otherwise
-	Inflow      *InflowMeter
+	// Damping is the first-order time constant of the reading (the
+	// transmitter's damping setting plus any stilling well); 0: none. The
+	// fit then models the lagged reading (model.Tank.SensorLagS).
+	Damping time.Duration
+	Inflow  *InflowMeter
 }
 
 // Calibration converts a raw transmitter reading (in Sensor.Unit: mA, V,

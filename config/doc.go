@@ -80,6 +80,8 @@
 //	                             increasing or strictly decreasing; it is interpolated by a monotone
 //	                             cubic and extrapolated along its end segments (see ingest.Calibration).
 //	    density                  (998.2067 kg/m3, water at 20 °C, Tanaka et al. 2001, Metrologia 38:301)
+//	    damping                  (0) the reading's first-order time constant (transmitter damping
+//	                             setting plus any stilling well), e.g. "20 s"; the fit models the lag
 //	    inflow                   optional meter: unit (m3/s m3/min m3/h L/s L/min L/h), field (inflow)
 //	  source
 //	    format                   csv | line_protocol | influx

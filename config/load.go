@@ -473,6 +473,7 @@ func (d *decoder) sensor(n *yaml.Node, path string, parent *fields) Sensor {
 		Kind:        SensorKind(f.oneOf("kind", "", string(Depth), string(Pressure))),
 		ZeroOffset:  quantity(f, "zero_offset", 0, parseNumber, nil),
 		DensityKgM3: quantity(f, "density", WaterDensity, ParseDensity, between(0, 25000, true, false)),
+		Damping:     quantity(f, "damping", 0, ParseDuration, nonNegativeDuration),
 	}
 	if n != nil && !f.has("kind") {
 		d.add(path+".kind", f.at(), "required: depth or pressure")

@@ -278,3 +278,39 @@ func TestInfluxToken(t *testing.T) {
 		}
 	}
 }
+
+// sensor.damping is read as a duration, defaults to 0 and refuses negative
+// values with the field named (common practice: transmitter damping is set
+// in seconds).
+func TestSensorDamping(t *testing.T) {
+	for _, tc := range []struct {
+		val     string
+		want    time.Duration
+		problem string
+	}{
+		{"", 0, ""},
+		{"damping: 20 s", 20 * time.Second, ""},
+		{"damping: 1.5 min", 90 * time.Second, ""},
+		{"damping: -3 s", 0, "sensor.damping"},
+	} {
+		extra := ""
+		if tc.val != "" {
+			extra = ", " + tc.val
+		}
+		src := "tanks:\n  - id: D1\n    geometry: {shape: vertical_cylinder, diameter: 2 m, height: 3 m}\n    outlet: {diameter: 50 mm, elevation: 0 m}\n    sensor: {kind: depth, unit: m" + extra + "}\n    source: {format: csv, paths: [x.csv]}\n"
+		c, err := Parse([]byte(src), "damping.yaml")
+		if tc.problem != "" {
+			if err == nil || !strings.Contains(err.Error(), tc.problem) {
+				t.Errorf("%q: got %v, want a problem naming %s", tc.val, err, tc.problem)
+			}
+			continue
+		}
+		if err != nil {
+			t.Errorf("%q: %v", tc.val, err)
+			continue
+		}
+		if got := c.Tanks[0].Sensor.Damping; got != tc.want {
+			t.Errorf("%q: damping %v, want %v", tc.val, got, tc.want)
+		}
+	}
+}

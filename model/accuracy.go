@@ -59,6 +59,8 @@ type AccuracyRow struct {
 	Ratio        float64
 	RelBias      float64
 	Coverage     float64
+	Disturbance  string  // RealisticStudy rows: what departs from white noise
+	Usable       float64 // RealisticStudy rows: share of fitted drains graded A or B
 }
 
 // accuracyTank returns the study tank for a shape name, its true K and the

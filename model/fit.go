@@ -285,7 +285,11 @@ func fitLevel(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratch
 		return fmt.Errorf("%d samples after removing outliers, need at least %d", m, np+2)
 	}
 	p0 := []float64{lf.a, -lf.b, d0}[:np]
-	res, err := lsq.MinimizeNormal(levelNormal(ht, tt, yy, np), p0, m,
+	normal := levelNormal(ht, tt, yy, np)
+	if t.SensorLagS > 0 {
+		normal = lagNormal(ht, tt, yy, np, t.SensorLagS)
+	}
+	res, err := lsq.MinimizeNormal(normal, p0, m,
 		&lsq.Options{MaxIterations: o.MaxIterations, XTol: 1e-10, FTol: 1e-13, Fused: true})
 	if err != nil || res.Cov == nil || !(res.Params[1] > 0) {
 		// Fall back to the stage-1 line; Grade caps it at C.
@@ -309,9 +313,10 @@ func fitLevel(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratch
 	fit.KLo95M25s, fit.KHi95M25s = k-tq*fit.KSEM25s, k+tq*fit.KSEM25s
 	fit.SigmaM = math.Sqrt(res.SS / float64(df))
 	fit.DatumM = d
+	fit.DatumFitted = np == 3
 	fit.H0M = ht.Inv(f0)
 	fit.H1M = ht.Inv(f0 - k*tau[n-1])
-	levelDiagnostics(fit, ht, tt, yy, f0, k, d, np, res.SS, sc)
+	levelDiagnostics(fit, ht, tt, yy, f0, k, d, np, res.SS, sc, t.SensorLagS)
 	return nil
 }
 
@@ -397,7 +402,7 @@ func fillNormal(jtj, jtr []float64, np, m int, a00, a01, a11, a02, a12, _, g0, g
 // levelDiagnostics computes R^2, Durbin-Watson and the exponent at the
 // stage-2 solution in one pass, then corrects the standard errors of K and
 // of the exponent for serially correlated residuals (see serialCov).
-func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d float64, np int, ss float64, sc *fitScratch) {
+func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d float64, np int, ss float64, sc *fitScratch, lagS float64) {
 	h0 := ht.Inv(f0)
 	l0 := ht.logMoment(h0)
 	na := np + 1
@@ -415,10 +420,28 @@ func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d fl
 	hint, hintB := -1, -1
 	var la, lb, ta, tb float64
 	blockEnd := -1
+	// With a transmitter lag the model reading and its sensitivities are
+	// filtered (see lagNormal), from rest at τ = 0.
+	var lagOut, lagIn [5]float64
+	tPrev := 0.0
+	if lagS > 0 {
+		hs, gs, _ := ht.invG(f0, -1)
+		lagOut = [5]float64{hs, gs, 0, 1, 0}
+		lagIn = lagOut
+		if np == 2 {
+			lagOut[2+1], lagIn[2+1] = 0, 0
+		}
+	}
 	for i, ti := range tt {
 		var h, g float64
 		h, g, hint = ht.invG(f0-k*ti, hint)
-		r := yy[i] - d - h
+		hModel := h
+		if lagS > 0 {
+			a, beta := lagCoef(ti-tPrev, lagS)
+			hModel = lagFilter(lagOut[0], lagIn[0], h, a, beta)
+			lagOut[0], lagIn[0] = hModel, h
+		}
+		r := yy[i] - d - hModel
 		if i > 0 {
 			dwNum += (r - prev) * (r - prev)
 		}
@@ -445,6 +468,15 @@ func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d fl
 		col[np] = 0
 		if h > 0 {
 			col[np] = g * (lh - l0)
+		}
+		if lagS > 0 {
+			a, beta := lagCoef(ti-tPrev, lagS)
+			for c := range na {
+				v := lagFilter(lagOut[1+c], lagIn[1+c], col[c], a, beta)
+				lagOut[1+c], lagIn[1+c] = v, col[c]
+				col[c] = v
+			}
+			tPrev = ti
 		}
 		copy(cols[i*na:], col[:na])
 		for a := range na {

@@ -43,10 +43,11 @@ import (
 //  2. What the autoregression leaves is measured on the standardised
 //     innovations by Newey & West (1987), "A simple, positive semi-definite,
 //     heteroskedasticity and autocorrelation consistent covariance matrix",
-//     Econometrica 55(3): Bartlett weights 1 - l/(L+1) up to the lag
-//     L = floor(4 (N/100)^{2/9}) (Newey & West 1994, Rev. Econ. Stud.
-//     61(4)). Their long-run to short-run variance ratio λ, floored at 1,
-//     scales Ω.
+//     Econometrica 55(3): Bartlett weights 1 - l/(L+1) up to the lag L of
+//     Andrews (1991), "Heteroskedasticity and autocorrelation consistent
+//     covariance matrix estimation", Econometrica 59(3), AR(1) plug-in
+//     (floored at the rule of Newey & West 1994, Rev. Econ. Stud. 61(4)).
+//     Their long-run to short-run variance ratio λ, floored at 1, scales Ω.
 //
 // The correction applies only when the residual autocorrelation is
 // significant, ρ̂ > 2/sqrt(N) (about a 2.5 % one-sided test under white
@@ -80,12 +81,15 @@ func serialCov(tt, r, cols []float64, np, na int, ata, dtBuf []float64) serialFi
 	if !(delta > 0) {
 		return out
 	}
-	var num, den float64
+	var num, num2, den float64
 	den = r[0] * r[0]
 	for i := 1; i < n; i++ {
 		den += r[i] * r[i]
 		if tt[i]-tt[i-1] <= 1.5*delta {
 			num += r[i] * r[i-1]
+		}
+		if i > 1 && tt[i]-tt[i-2] <= 2.5*delta {
+			num2 += r[i] * r[i-2]
 		}
 	}
 	if !(den > 0) {
@@ -97,24 +101,60 @@ func serialCov(tt, r, cols []float64, np, na int, ata, dtBuf []float64) serialFi
 		return out
 	}
 	fn, fp := float64(n), float64(np)
+	// White reading noise or counts on top of the autoregression (an
+	// ARMA(1,1) error) lower the lag-1 autocorrelation but not the decay
+	// from lag 1 to lag 2: ρ = γ2/γ1, the white part γ0 - γ1/ρ (the
+	// moment estimator, Box & Jenkins, "Time Series Analysis", §6.3).
+	whiteM2 := 0.0
+	if r2 := num2 / num; r2 > rho && r2 < 1 {
+		whiteM2 = math.Max(0, (den-num/r2)/fn)
+		rho = r2
+	}
+	rawRho := rho
 	rho = math.Min((rho+fp/fn)/(1-(fp+2)/fn), 0.999)
+	// The variance factor is convex in ρ and ρ̂ is scattered by about
+	// sqrt((1-ρ^2)/N) (Bartlett): plugging in the estimate understates
+	// the variance on average (Jensen), the more so near 1. One standard
+	// error above the estimate is plugged in instead.
+	rho = math.Min(rho+math.Sqrt((1-rho*rho)/fn), 0.999)
 	out.Rho = rho
 	lr := math.Log(rho)
 	// Innovations, standardised; γ0 from their mean square.
 	e := buf // reuse: n-1 innovations
-	var g0 float64
+	var g0, amp float64
 	for i := 1; i < n; i++ {
 		phi := math.Exp(lr * (tt[i] - tt[i-1]) / delta)
 		s := math.Sqrt(1 - phi*phi)
 		e[i-1] = (r[i] - phi*r[i-1]) / s
 		g0 += e[i-1] * e[i-1]
+		amp += (1 + phi*phi) / (1 - phi*phi)
 	}
 	g0 /= float64(n - 1)
-	out.Gamma0 = g0
 	if !(g0 > 0) {
 		return out
 	}
-	lag := int(math.Floor(4 * math.Pow(float64(n)/100, 2.0/9)))
+	// The white part passes the prewhitening amplified by (1+φ^2)/(1-φ^2);
+	// what remains is the autoregression's own variance (at least what
+	// the residuals' lag-1 covariance shows).
+	gAR := g0
+	if whiteM2 > 0 {
+		gAR = math.Max(g0-whiteM2*amp/float64(n-1), num/fn/rawRho)
+	}
+	out.Gamma0 = gAR
+	// Bandwidth: Andrews (1991) plug-in for the Bartlett kernel from the
+	// innovations' own lag-1 autocorrelation ρe (what the autoregression
+	// missed: an AR(1) error plus white reading noise or counts leaves a
+	// slowly decaying remainder), L = 1.1447 (α N)^{1/3} with
+	// α = 4ρe^2/((1-ρe)^2(1+ρe)^2), never below the Newey-West (1994)
+	// rule 4 (N/100)^{2/9} and at most N/4.
+	var c1e float64
+	for i := 1; i < n-1; i++ {
+		c1e += e[i] * e[i-1]
+	}
+	re := math.Min(math.Max(c1e/(g0*float64(n-1)), 0), 0.98)
+	alpha := 4 * re * re / ((1 - re) * (1 - re) * (1 + re) * (1 + re))
+	lag := int(math.Max(math.Floor(4*math.Pow(float64(n)/100, 2.0/9)), math.Floor(1.1447*math.Cbrt(alpha*float64(n)))))
+	lag = min(lag, n/4)
 	lam := 1.0
 	for l := 1; l <= lag && l < n-1; l++ {
 		var c float64
@@ -145,7 +185,7 @@ func serialCov(tt, r, cols []float64, np, na int, ata, dtBuf []float64) serialFi
 	omega := make([]float64, na*na)
 	for a := range na {
 		for b := range na {
-			omega[a*na+b] = lam * g0 * (s[a*na+b] + s[b*na+a] - ata[a*na+b])
+			omega[a*na+b] = lam * (gAR*(s[a*na+b]+s[b*na+a]-ata[a*na+b]) + whiteM2*ata[a*na+b])
 		}
 	}
 	out.Omega = omega

@@ -24,7 +24,9 @@ type Shape interface {
 // liquid below it does not drain. OutletDiamM is the outlet bore (m), 0 when
 // unknown. DesignCd is the design discharge coefficient (0 when not given).
 // DatumKnown is false when the outlet elevation is only nominal: the fit then
-// estimates the datum offset per drain.
+// estimates the datum offset per drain. SensorLagS is the first-order time
+// constant of the level reading (transmitter damping plus any stilling
+// well), s; 0 when the reading follows the level (see lagNormal).
 type Tank struct {
 	ID          string
 	Shape       Shape
@@ -32,6 +34,7 @@ type Tank struct {
 	OutletDiamM float64
 	DesignCd    float64
 	DatumKnown  bool
+	SensorLagS  float64
 }
 
 // AreaAtHeadM2 is the free-surface area at head h above the outlet, m^2.

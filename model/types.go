@@ -126,6 +126,7 @@ type Fit struct {
 	ResidualRho   float64 // lag-1 autocorrelation of the residuals, bias-corrected when significant; NaN when not computed
 	EffectiveN    int     // samples' worth of independent information after the serial correlation; N when white
 	DatumM        float64
+	DatumFitted   bool // DatumM was estimated (outlet elevation unknown)
 	Method        string
 	Quality       Quality
 	QualityReason string  // why the grade is below A; empty for A

@@ -149,7 +149,11 @@ type eventRecord struct {
 	QualityReason string    `json:"quality_reason,omitempty"`
 	Method        string    `json:"method"`
 	Exponent      float64   `json:"exponent"`
+	ExponentSE    float64   `json:"exponent_se"`
+	DatumM        *float64  `json:"datum_m,omitempty"`
 	SigmaM        float64   `json:"sigma_m"`
+	ResidualRho   float64   `json:"residual_rho"`
+	EffectiveN    int       `json:"effective_samples"`
 	Complete      bool      `json:"complete"`
 }
 
@@ -198,7 +202,12 @@ func toEventRecord(f model.Fit) eventRecord {
 		Samples: f.N, HeadStartM: sig(f.H0M), HeadEndM: sig(f.H1M), KM25s: sig(f.KM25s), KSE: sig(f.KSEM25s),
 		KLo95: sig(f.KLo95M25s), KHi95: sig(f.KHi95M25s), CdAM2: sig(f.CdAM2), R2: sig(f.R2),
 		Quality: string(f.Quality), QualityReason: f.QualityReason, Method: f.Method,
-		Exponent: sig(f.Exponent), SigmaM: sig(f.SigmaM), Complete: f.Complete,
+		Exponent: sig(f.Exponent), ExponentSE: sig(f.ExponentSE), SigmaM: sig(f.SigmaM),
+		ResidualRho: sig(f.ResidualRho), EffectiveN: f.EffectiveN, Complete: f.Complete,
+	}
+	if f.DatumFitted {
+		d := sig(f.DatumM)
+		r.DatumM = &d
 	}
 	if !math.IsNaN(f.Cd) && f.Cd > 0 {
 		cd := sig(f.Cd)

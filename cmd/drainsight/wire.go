@@ -52,6 +52,7 @@ func buildPlan(ct config.Tank) (*plan, error) {
 		OutletDiamM: ct.Outlet.DiameterM,
 		DesignCd:    ct.Outlet.DesignCd,
 		DatumKnown:  ct.Outlet.ElevationKnown,
+		SensorLagS:  ct.Sensor.Damping.Seconds(),
 	}
 	if err := t.Validate(); err != nil {
 		return nil, err
