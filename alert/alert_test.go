@@ -211,3 +211,50 @@ func TestCommandNotifierGetsJSON(t *testing.T) {
 		t.Error("a failing command must return an error")
 	}
 }
+
+// A tank whose data are missing has only its feed evaluated: its other
+// findings stay as they were (not missed, not cleared), a feed notice is
+// new once, ongoing while the feed stays silent, and cleared at the first
+// evaluation after the data return (common practice: one page when a feed
+// goes silent, one when it is back).
+func TestUpdateFeedsWithholdsAndNotifiesOnce(t *testing.T) {
+	day := func(d int) time.Time { return time.Date(2026, 1, 1+d, 0, 0, 0, 0, time.UTC) }
+	leak := detect.Finding{Tank: "T", Kind: "tank_leak"}
+	feed := detect.Finding{Tank: "T", Kind: detect.KindFeed, Subtype: detect.SubSilent}
+	tr := NewTracker(nil)
+	status := func(evs []Event, kind string) Status {
+		for _, e := range evs {
+			if e.Finding.Kind == kind {
+				return e.Status
+			}
+		}
+		return ""
+	}
+	if got := status(tr.Update(day(0), []string{"T"}, []detect.Finding{leak}), "tank_leak"); got != StatusNew {
+		t.Fatalf("leak: %s, want new", got)
+	}
+	// Five evaluations with the feed silent: the leak is withheld (more
+	// than ClearAfter evaluations without it, yet not cleared); the feed
+	// notice is new once, then ongoing.
+	for d := 1; d <= 5; d++ {
+		evs := tr.UpdateFeeds(day(d), nil, []string{"T"}, []detect.Finding{feed})
+		want := StatusOngoing
+		if d == 1 {
+			want = StatusNew
+		}
+		if got := status(evs, detect.KindFeed); got != want {
+			t.Errorf("day %d: feed notice %s, want %s", d, got, want)
+		}
+		if got := status(evs, "tank_leak"); got != "" {
+			t.Errorf("day %d: leak event %s while withheld, want none", d, got)
+		}
+	}
+	// Data back and the leak still there: the notice clears, the leak goes on.
+	evs := tr.Update(day(6), []string{"T"}, []detect.Finding{leak})
+	if got := status(evs, detect.KindFeed); got != StatusCleared {
+		t.Errorf("data back: feed notice %s, want cleared", got)
+	}
+	if got := status(evs, "tank_leak"); got != StatusOngoing {
+		t.Errorf("data back: leak %s, want ongoing", got)
+	}
+}

@@ -93,9 +93,22 @@ func (t *Tracker) ResetTank(tank string) { t.reset[tank] = true }
 // ClearAfter evaluations). Cleared records are dropped on the next Update, so
 // a finding that comes back is new again.
 func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Finding) []Event {
+	return t.UpdateFeeds(now, evaluated, nil, findings)
+}
+
+// UpdateFeeds is Update where the tanks in feedOnly had only their feed
+// evaluated: their data are missing, so their other findings are withheld
+// (kept as they are, neither ongoing nor missed), while their feed notice
+// (kind detect.KindFeed) is raised or kept. A feed notice clears at the
+// first evaluation without it: the data are back.
+func (t *Tracker) UpdateFeeds(now time.Time, evaluated, feedOnly []string, findings []detect.Finding) []Event {
 	inScope := make(map[string]bool, len(evaluated))
 	for _, tank := range evaluated {
 		inScope[tank] = true
+	}
+	feedScope := make(map[string]bool, len(feedOnly))
+	for _, tank := range feedOnly {
+		feedScope[tank] = true
 	}
 	seen := make(map[string]bool, len(findings))
 	var evs []Event
@@ -120,7 +133,8 @@ func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Fi
 		clearAfter = DefaultClearAfter
 	}
 	for k, r := range t.recs {
-		if seen[k] || !inScope[r.Finding.Tank] {
+		isFeed := r.Finding.Kind == detect.KindFeed
+		if seen[k] || !(inScope[r.Finding.Tank] || isFeed && feedScope[r.Finding.Tank]) {
 			continue
 		}
 		if r.Status == StatusCleared {
@@ -131,7 +145,7 @@ func (t *Tracker) Update(now time.Time, evaluated []string, findings []detect.Fi
 			r.Missed++
 			r.Checked = now
 		}
-		if r.Missed < clearAfter && !t.reset[r.Finding.Tank] {
+		if r.Missed < clearAfter && !t.reset[r.Finding.Tank] && !isFeed {
 			r.Status = StatusOngoing
 			evs = append(evs, Event{Status: StatusOngoing, At: now, Finding: r.Finding})
 			continue

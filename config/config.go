@@ -192,6 +192,7 @@ type Source struct {
 type Detection struct {
 	BaselineDrains      int           // default 8: good drains that start the baseline (the detector's default)
 	DesignKM25s         float64       // design outlet constant, m^2.5/s; 0 when not given
+	FeedSilentLimit     time.Duration // default 4 h: a feed without samples this long gets one feed notice (and one when it returns)
 	FalseAlarmInterval  time.Duration // default 10 y: mean time between false outlet findings per tank, all charts together
 	CusumK              float64       // default 0.5: CUSUM reference value, in standard deviations
 	EWMALambda          float64       // default 0.1: EWMA weight of the newest drain (the detector's default)

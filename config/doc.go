@@ -102,6 +102,7 @@
 //	    transient                (30 s)
 //	    settle                   (5 min)
 //	    gap_limit                (5 min)
+//	    feed_silent_limit        (4 h) a feed without samples this long gets one feed notice, and one when it returns
 //	outputs                      optional
 //	  directory                  (out)
 //	  state_file                 (<directory>/state.db) bbolt

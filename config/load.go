@@ -784,6 +784,7 @@ func (d *decoder) detection(n *yaml.Node, path string) Detection {
 		Transient:           quantity(f, "transient", 30*time.Second, ParseDuration, nonNegativeDuration),
 		Settle:              quantity(f, "settle", 5*time.Minute, ParseDuration, nonNegativeDuration),
 		GapLimit:            quantity(f, "gap_limit", 5*time.Minute, ParseDuration, positiveDuration),
+		FeedSilentLimit:     quantity(f, "feed_silent_limit", 4*time.Hour, ParseDuration, positiveDuration),
 	}
 	f.done()
 	return det

@@ -22,8 +22,6 @@ const (
 	SubSpikes  = "spikes"
 	SubNoise   = "noise"
 	SubDrift   = "drift"
-	SubGap     = "gap"
-	SubStale   = "stale"
 )
 
 // Finding is one active condition on a tank.
@@ -86,10 +84,17 @@ func nsTime(ns int64) time.Time { return time.Unix(0, ns).UTC() }
 
 // Evaluate returns the tank's active findings at time now. Sensor faults come
 // first; while one is active the outlet and leak findings are withheld (a
-// drifting or stuck sensor must not be reported as a restriction). Evaluate
-// does not modify the state.
+// drifting or stuck sensor must not be reported as a restriction). While the
+// feed has a gap in progress (Feed(now, opt).Withholds()) it returns nil:
+// nothing is raised from too little data, and a caller keeping a lifecycle
+// must not count such an evaluation as one without its findings (they are
+// withheld, not gone). Data gaps themselves are never findings: they are the
+// feed's status (Feed). Evaluate does not modify the state.
 func (s *State) Evaluate(now time.Time, opt Options) []Finding {
 	opt = opt.withDefaults()
+	if s.Feed(now, opt).Withholds() {
+		return nil
+	}
 	out := s.sensorFindings(now, opt)
 	outlet := s.outletFindings(now, opt)
 	if len(out) > 0 {
@@ -432,36 +437,10 @@ func slopeOLS(x, y []float64) (b, se float64, ok bool) {
 	return b, math.Max(se, 1e-9), true
 }
 
-// sensorFindings runs the feed and sensor checks.
+// sensorFindings runs the sensor checks (stuck, noise, spikes, drift).
 func (s *State) sensorFindings(now time.Time, opt Options) []Finding {
 	var out []Finding
-	ss := &s.Sensor
-	mk := func(sub, stat string, v, thr, p float64, ev string) Finding {
-		return Finding{Tank: s.Tank, Kind: KindSensorFault, Subtype: sub, DetectedAt: now, Statistic: stat,
-			Value: v, Threshold: thr, PValue: p, Evidence: ev}
-	}
-	nowNs := now.UnixNano()
-	if ss.LastSampleNs > 0 {
-		if age := time.Duration(nowNs - ss.LastSampleNs); age > opt.StaleAfter {
-			f := mk(SubStale, "age_h", age.Hours(), opt.StaleAfter.Hours(), math.NaN(),
-				fmt.Sprintf("no level sample for %.1f h (last at %s, limit %.1f h)", age.Hours(), nsTime(ss.LastSampleNs).Format(time.RFC3339), opt.StaleAfter.Hours()))
-			f.Onset = nsTime(ss.LastSampleNs)
-			out = append(out, f)
-		}
-	}
 	out = append(out, s.stuckFindings(now, opt)...)
-	win := int64(opt.GapWindow)
-	var lost int64
-	for _, g := range ss.Gaps {
-		lo, hi := max(g.StartNs, nowNs-win), min(g.EndNs, nowNs)
-		if hi > lo {
-			lost += hi - lo
-		}
-	}
-	if share := float64(lost) / float64(win); share > opt.GapShare {
-		out = append(out, mk(SubGap, "gap_share", share, opt.GapShare, math.NaN(),
-			fmt.Sprintf("gaps cover %.0f %% of the last %.0f h (limit %.0f %%)", 100*share, opt.GapWindow.Hours(), 100*opt.GapShare)))
-	}
 	out = append(out, s.recordFindings(now, opt)...)
 	return out
 }

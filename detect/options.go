@@ -50,16 +50,18 @@ type Options struct {
 	// restriction gradual and to forecast. Default 0.05.
 	TrendAlpha float64
 
-	// StaleAfter: no sample for this long means the feed is stale.
-	// Default 6 h.
-	StaleAfter time.Duration
-	// GapLimit: a step between samples longer than this is a gap.
-	// Default 15 min.
+	// GapLimit: a step between samples longer than this is a gap: the
+	// stretch without samples is the feed's condition (see Feed), a flat run
+	// of readings never spans it, and while one is in progress findings are
+	// withheld. Default 15 min.
 	GapLimit time.Duration
-	// GapWindow and GapShare: a gap finding is raised when gaps cover more
-	// than GapShare of the last GapWindow. Defaults 24 h and 0.1.
-	GapWindow time.Duration
-	GapShare  float64
+	// SilentLimit: a feed without samples for longer than this is silent
+	// and a feed notice goes out (once, and once when it comes back).
+	// Default 4 h (see DefaultSilentLimit).
+	SilentLimit time.Duration
+	// ReadLag: data younger than this are not read yet (the InfluxDB settle
+	// delay), so feed ages count from now minus ReadLag. Default 0.
+	ReadLag time.Duration
 	// StuckAfter: bit-identical readings for this long mean a stuck
 	// sensor while no noise estimate exists yet (no segment records); once
 	// one does, the stuck rule derives from the sensor's noise and quantum
@@ -123,17 +125,14 @@ func (o Options) withDefaults() Options {
 	if o.TrendAlpha <= 0 || o.TrendAlpha >= 1 {
 		o.TrendAlpha = 0.05
 	}
-	if o.StaleAfter <= 0 {
-		o.StaleAfter = 6 * time.Hour
-	}
 	if o.GapLimit <= 0 {
 		o.GapLimit = 15 * time.Minute
 	}
-	if o.GapWindow <= 0 {
-		o.GapWindow = 24 * time.Hour
+	if o.SilentLimit <= 0 {
+		o.SilentLimit = DefaultSilentLimit
 	}
-	if o.GapShare <= 0 {
-		o.GapShare = 0.1
+	if o.ReadLag < 0 {
+		o.ReadLag = 0
 	}
 	if o.StuckAfter <= 0 {
 		o.StuckAfter = 12 * time.Hour
@@ -158,6 +157,14 @@ func (o Options) withDefaults() Options {
 	}
 	return o
 }
+
+// DefaultSilentLimit is the default Options.SilentLimit. Routine data gaps
+// (a logger restart, a network outage) last minutes to a few hours and end by
+// themselves; a feed still silent after 4 h, half a control-room shift, is a
+// broken data path someone has to restore, and has already lost one to a few
+// drains at 1-6 drains a day. Level safety is the control system's own
+// alarm, not drainsight's, so there is no reason to page sooner.
+const DefaultSilentLimit = 4 * time.Hour
 
 // qualityRank orders the grades, A best.
 func qualityRank(q model.Quality) int {

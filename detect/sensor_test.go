@@ -186,3 +186,100 @@ func TestStuckRunsVersusNoise(t *testing.T) {
 		})
 	}
 }
+
+// TestStuckNeverSpansAGap: a stretch without samples is a gap (the feed's
+// status), never part of a flat run. Each series is evaluated 30 s after its
+// last sample, when the feed is ok again.
+func TestStuckNeverSpansAGap(t *testing.T) {
+	const dt = 30 * time.Second
+	hole := 6 * time.Hour
+	for _, tt := range []struct {
+		name  string
+		fresh bool // no idle records yet: the fixed StuckAfter rule applies
+		opt   Options
+		build func(rng *rand.Rand, ser *model.Series, t0 int64)
+		stuck bool
+		// longest stuck run reported, when stuck
+		maxRun time.Duration
+	}{
+		{"6 h hole, continuous noise, noise known", false, Options{}, func(rng *rand.Rand, ser *model.Series, t0 int64) {
+			readings(rng, ser, t0, dt, 600, 1, 0.0015, 0, -1, -1)
+			readings(rng, ser, t0+600*int64(dt)+int64(hole), dt, 600, 1, 0.0015, 0, -1, -1)
+		}, false, 0},
+		// The readings on both sides of the hole are equal (1 mm counts):
+		// a run of two identical readings lasting 6 h, which the fixed
+		// 4 h rule would call stuck if the hole counted.
+		{"6 h hole, same count on both sides, fixed 4 h rule", true, Options{StuckAfter: 4 * time.Hour}, func(rng *rand.Rand, ser *model.Series, t0 int64) {
+			readings(rng, ser, t0, dt, 600, 1, 0.001, 0.001, -1, -1)
+			v := ser.HeadM[ser.Len()-1]
+			ser.Append(t0+600*int64(dt)+int64(hole), v)
+			readings(rng, ser, t0+601*int64(dt)+int64(hole), dt, 600, 1.2, 0.001, 0.001, -1, -1)
+		}, false, 0},
+		// An emptied tank reading a clipped zero before and after a 13 h
+		// hole: 20 identical readings spanning more than StuckAfter (12 h).
+		{"13 h hole, clipped empty reading on both sides", true, Options{}, func(rng *rand.Rand, ser *model.Series, t0 int64) {
+			readings(rng, ser, t0, dt, 600, 1, 0.001, 0.001, -1, -1)
+			t1 := t0 + 600*int64(dt)
+			for i := range 10 {
+				ser.Append(t1+int64(i)*int64(dt), 0)
+			}
+			t2 := t1 + 9*int64(dt) + int64(13*time.Hour)
+			for i := range 10 {
+				ser.Append(t2+int64(i)*int64(dt), 0)
+			}
+			readings(rng, ser, t2+10*int64(dt), dt, 600, 1, 0.001, 0.001, -1, -1)
+		}, false, 0},
+		// A real stuck stretch with samples is still found.
+		{"stuck 6 h with samples", false, Options{}, func(rng *rand.Rand, ser *model.Series, t0 int64) {
+			readings(rng, ser, t0, dt, 600+720+600, 1, 0.0015, 0, 600, 600+720)
+		}, true, 6 * time.Hour},
+		// Stuck for 3 h, a 6 h hole, stuck 3 h more at the same value: two
+		// stuck runs of 3 h each, neither spanning the hole.
+		{"stuck 3 h, hole 6 h, stuck 3 h", false, Options{}, func(rng *rand.Rand, ser *model.Series, t0 int64) {
+			readings(rng, ser, t0, dt, 600, 1, 0.0015, 0, -1, -1)
+			v := ser.HeadM[ser.Len()-1]
+			t1 := t0 + 600*int64(dt)
+			for i := range 360 {
+				ser.Append(t1+int64(i)*int64(dt), v)
+			}
+			t2 := t1 + 359*int64(dt) + int64(hole)
+			for i := range 360 {
+				ser.Append(t2+int64(i)*int64(dt), v)
+			}
+			readings(rng, ser, t2+360*int64(dt), dt, 600, 1, 0.0015, 0, -1, -1)
+		}, true, 3 * time.Hour},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			rng := rand.New(rand.NewPCG(11, 12))
+			s := sensorTank(0.0015)
+			if tt.fresh {
+				s = NewState("fresh")
+			}
+			t0 := dayNs(1)
+			ser := &model.Series{}
+			tt.build(rng, ser, t0)
+			s.AddSeries(ser, tt.opt)
+			now := nsTime(ser.TimeNs[ser.Len()-1] + 30e9)
+			var got []Finding
+			for _, f := range s.Evaluate(now, tt.opt) {
+				if f.Subtype == SubStuck {
+					got = append(got, f)
+				}
+			}
+			if (len(got) > 0) != tt.stuck {
+				t.Fatalf("stuck findings %+v, want stuck = %v", got, tt.stuck)
+			}
+			if n := len(s.Sensor.Gaps); n != 1 && tt.name != "stuck 6 h with samples" {
+				t.Errorf("gaps = %d, want 1 (the hole is a gap)", n)
+			}
+			for _, r := range s.Sensor.StuckRuns {
+				if d := time.Duration(r.EndNs - r.StartNs); d > tt.maxRun {
+					t.Errorf("stuck run of %v (%s to %s), longest allowed %v", d, nsTime(r.StartNs), nsTime(r.EndNs), tt.maxRun)
+				}
+			}
+			if tt.stuck && len(s.Sensor.StuckRuns) == 0 {
+				t.Errorf("no stuck run recorded")
+			}
+		})
+	}
+}

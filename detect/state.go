@@ -393,11 +393,13 @@ func (s *State) AddIdle(f model.IdleFit, _ Options) {
 // leakK is the reference value of the leak CUSUM.
 const leakK = 0.5
 
-// AddSeries scans new raw samples of the tank's level for the feed checks:
-// the time of the newest sample (stale), gaps longer than opt.GapLimit, the
-// reading quantum, and the current run of bit-identical readings (stuck);
-// a run that ends after meeting the stuck rule (see stuckRule, evaluated
-// with the records known at this call) is kept in StuckRuns. Samples at or
+// AddSeries scans new raw samples of the tank's level for the feed status
+// and the stuck check: the time of the newest sample, gaps longer than
+// opt.GapLimit (see Feed), the reading quantum, and the current run of
+// bit-identical readings (stuck), which a gap ends as a changed reading
+// does, so that no run spans a stretch without samples; a run that ends
+// after meeting the stuck rule (see stuckRule, evaluated with the records
+// known at this call) is kept in StuckRuns. Samples at or
 // before the last one seen are skipped, so overlapping windows are harmless.
 func (s *State) AddSeries(ser *model.Series, opt Options) {
 	opt = opt.withDefaults()
@@ -409,14 +411,18 @@ func (s *State) AddSeries(ser *model.Series, opt Options) {
 		}
 		h := ser.HeadM[i]
 		if ss.LastSampleNs > 0 {
-			if t-ss.LastSampleNs > int64(opt.GapLimit) {
+			gap := t-ss.LastSampleNs > int64(opt.GapLimit)
+			if gap {
 				ss.Gaps = appendCapped(ss.Gaps, Gap{StartNs: ss.LastSampleNs, EndNs: t}, maxGaps)
 			}
-			if h != ss.LastHeadM {
+			// A stretch without samples is a gap, not a flat reading: it
+			// ends the run of identical readings as a change does (the run
+			// before it is judged on its own samples and duration).
+			if gap || h != ss.LastHeadM {
 				if lim.stuckNow(ss.FlatRunN, time.Duration(ss.LastSampleNs-ss.FlatSinceNs), opt) {
 					ss.StuckRuns = appendCapped(ss.StuckRuns, StuckRun{StartNs: ss.FlatSinceNs, EndNs: ss.LastSampleNs, N: ss.FlatRunN}, maxStuckRuns)
 				}
-				if d := math.Abs(h - ss.LastHeadM); d > quantumFloorM && (ss.QuantumM == 0 || d < ss.QuantumM) {
+				if d := math.Abs(h - ss.LastHeadM); h != ss.LastHeadM && d > quantumFloorM && (ss.QuantumM == 0 || d < ss.QuantumM) {
 					ss.QuantumM = d
 				}
 				ss.FlatSinceNs, ss.FlatRunN = t, 0

@@ -189,7 +189,8 @@ func TestSensorChecksAndSuppression(t *testing.T) {
 		t.Fatalf("got %+v, want only sensor_fault/drift", fs)
 	}
 
-	// Feed checks from raw samples.
+	// Raw samples: a gap is the feed's status, never a finding; the stuck
+	// run after it is still found.
 	f := NewState("feed")
 	ser := &model.Series{}
 	t0 := dayNs(0)
@@ -203,23 +204,30 @@ func TestSensorChecksAndSuppression(t *testing.T) {
 	f.AddSeries(ser, opt)
 	f.AddSeries(ser, opt) // a repeat changes nothing
 	last := ser.TimeNs[len(ser.TimeNs)-1]
-	got := map[string]bool{}
-	for _, x := range f.Evaluate(nsTime(last+int64(time.Hour)), opt) {
-		got[x.Subtype] = true
-	}
-	// The 4 h gap is 17 % of the last 24 h (limit 10 %).
-	if !got[SubStuck] || got[SubStale] || !got[SubGap] {
-		t.Errorf("1 h after the last sample: subtypes %v, want stuck and gap", got)
-	}
-	got = map[string]bool{}
-	for _, x := range f.Evaluate(nsTime(last+int64(7*time.Hour)), opt) {
-		got[x.Subtype] = true
-	}
-	if !got[SubStale] {
-		t.Errorf("7 h after the last sample: subtypes %v, want stale", got)
-	}
 	if len(f.Sensor.Gaps) != 1 {
 		t.Errorf("gaps = %d, want 1", len(f.Sensor.Gaps))
+	}
+	fs = f.Evaluate(nsTime(last+int64(time.Minute)), opt)
+	if len(fs) != 1 || fs[0].Subtype != SubStuck {
+		t.Fatalf("1 min after the last sample: %+v, want only sensor_fault/stuck", fs)
+	}
+	// The flat run starts after the gap: it never spans the stretch
+	// without samples.
+	if want := nsTime(t0 + int64(100)*60e9 + int64(4*time.Hour)); !fs[0].Onset.Equal(want) {
+		t.Errorf("stuck onset %v, want the first sample after the gap %v", fs[0].Onset, want)
+	}
+	for _, c := range []struct {
+		after time.Duration
+		state FeedState
+	}{{time.Minute, FeedOK}, {time.Hour, FeedGap}, {7 * time.Hour, FeedSilent}} {
+		now := nsTime(last + int64(c.after))
+		fd := f.Feed(now, opt)
+		if fd.State != c.state {
+			t.Errorf("%v after the last sample: feed %s, want %s", c.after, fd.State, c.state)
+		}
+		if got := f.Evaluate(now, opt); c.state != FeedOK && got != nil {
+			t.Errorf("%v after the last sample (feed %s): findings %+v, want withheld (nil)", c.after, fd.State, got)
+		}
 	}
 }
 

@@ -11,10 +11,12 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strings"
 	"time"
 
 	"drainsight/alert"
 	"drainsight/config"
+	"drainsight/detect"
 	"drainsight/model"
 )
 
@@ -335,6 +337,7 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 	for _, o := range res.failed() {
 		fmt.Fprintf(w, "FAILED %s: %v\n", o.tank, o.err)
 	}
+	printFeeds(w, res.outcomes)
 	if len(res.events) == 0 {
 		fmt.Fprintln(w, "No findings.")
 	} else {
@@ -344,4 +347,38 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 		fmt.Fprintln(w, alert.Caution)
 	}
 	fmt.Fprintf(w, "Outputs: %s, %s\n", filepath.Join(outDir, "events.jsonl"), filepath.Join(outDir, "findings.jsonl"))
+}
+
+// printFeeds writes the feeds' status: how many are ok, in a gap or
+// silent at the scan's time, and the data gaps seen in this pass. Data
+// availability is the data path's condition, reported here and never as a
+// tank finding.
+func printFeeds(w io.Writer, outcomes []tankOutcome) {
+	count := map[detect.FeedState]int{}
+	var notOK, gapped []string
+	for _, o := range outcomes {
+		fs, ok := o.feed()
+		if !ok {
+			continue
+		}
+		count[fs.State]++
+		if fs.State == detect.FeedGap || fs.State == detect.FeedSilent {
+			notOK = append(notOK, fmt.Sprintf("%s %s since %s (%.1f h)", o.tank, fs.State, fs.SilentSince.Format(time.RFC3339), fs.SilentForS/3600))
+		}
+		if len(o.gaps) > 0 {
+			var longest time.Duration
+			for _, g := range o.gaps {
+				longest = max(longest, time.Duration(g.EndNs-g.StartNs))
+			}
+			gapped = append(gapped, fmt.Sprintf("%s %d (longest %.1f h)", o.tank, len(o.gaps), longest.Hours()))
+		}
+	}
+	fmt.Fprintf(w, "Feeds: %d ok, %d in a gap, %d silent, %d without data.\n",
+		count[detect.FeedOK], count[detect.FeedGap], count[detect.FeedSilent], count[detect.FeedNoData])
+	for _, s := range notOK {
+		fmt.Fprintf(w, "  %s\n", s)
+	}
+	if len(gapped) > 0 {
+		fmt.Fprintf(w, "Data gaps in this pass: %s.\n", strings.Join(gapped, "; "))
+	}
 }

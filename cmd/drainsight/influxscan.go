@@ -224,7 +224,8 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			t.out.evals = t.run.evals // evaluated before the failure
 		}
 		if t.out.err == nil && t.run != nil {
-			t.out.evals = append(t.run.evals, evaluation{at: now, findings: t.run.det.Evaluate(now, t.p.detOpt)})
+			t.out.evals = append(t.run.evals, evaluate(t.run.det, now, t.p.detOpt))
+			t.out.gaps = t.run.det.GapsBetween(time.Unix(0, t.run.prevEvalNs), now)
 			j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, t.out.findings())
 		}
 		outs = append(outs, t.out)

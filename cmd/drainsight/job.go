@@ -112,12 +112,45 @@ type tankOutcome struct {
 	// reset is set when maintenance records changed: the tank's findings
 	// clear at once if absent.
 	reset bool
+	// gaps are the data gaps (stretches without samples longer than the
+	// detection gap limit) that overlap this pass: the feed's status, shown
+	// in the summary, never a finding.
+	gaps []detect.Gap
+}
+
+// feed returns the tank's feed status at the last evaluation.
+func (o *tankOutcome) feed() (detect.FeedStatus, bool) {
+	if len(o.evals) == 0 {
+		return detect.FeedStatus{}, false
+	}
+	return o.evals[len(o.evals)-1].feed, true
 }
 
 // evaluation is one tank's active findings at one time.
 type evaluation struct {
 	at       time.Time
 	findings []detect.Finding
+	feed     detect.FeedStatus
+	// withheld: the tank's data were missing at this time, so only its
+	// feed was evaluated (findings holds the feed notice, if one is due)
+	// and its other findings are kept as they were.
+	withheld bool
+}
+
+// evaluate is one tank's evaluation at at: its active findings or, while
+// its data are missing, only its feed notice (detect.FeedStatus.Notice).
+func evaluate(det *detect.State, at time.Time, opt detect.Options) evaluation {
+	fs := det.Feed(at, opt)
+	ev := evaluation{at: at, feed: fs}
+	if fs.Withholds() {
+		ev.withheld = true
+		if n, ok := fs.Notice(); ok {
+			ev.findings = []detect.Finding{n}
+		}
+		return ev
+	}
+	ev.findings = det.Evaluate(at, opt)
+	return ev
 }
 
 // evalEvery is how often a pass evaluates the statistics while it replays
@@ -248,7 +281,8 @@ func (f *fileTank) finish(now time.Time) tankOutcome {
 	o.samples, o.drains, o.reset = f.run.total, f.run.drains, f.run.maintChanged
 	o.fits, o.err = f.run.commit(true, now.UnixNano())
 	if o.err == nil {
-		o.evals = append(f.run.evals, evaluation{at: now, findings: f.run.det.Evaluate(now, f.run.p.detOpt)})
+		o.evals = append(f.run.evals, evaluate(f.run.det, now, f.run.p.detOpt))
+		o.gaps = f.run.det.GapsBetween(time.Unix(0, f.run.prevEvalNs), now)
 	}
 	return o
 }
@@ -349,6 +383,7 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 	var prev []alert.Record
 	type slot struct {
 		tanks    []string
+		feedOnly []string // tanks whose data were missing: only their feed was evaluated
 		findings []detect.Finding
 	}
 	slots := map[int64]*slot{}
@@ -371,7 +406,11 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 				sl = &slot{}
 				slots[ev.at.UnixNano()] = sl
 			}
-			sl.tanks = append(sl.tanks, o.tank)
+			if ev.withheld {
+				sl.feedOnly = append(sl.feedOnly, o.tank)
+			} else {
+				sl.tanks = append(sl.tanks, o.tank)
+			}
 			sl.findings = append(sl.findings, ev.findings...)
 		}
 	}
@@ -388,7 +427,7 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 	}
 	var evs []alert.Event
 	for i, t := range times {
-		e := tr.Update(time.Unix(0, t).UTC(), slots[t].tanks, slots[t].findings)
+		e := tr.UpdateFeeds(time.Unix(0, t).UTC(), slots[t].tanks, slots[t].feedOnly, slots[t].findings)
 		if i < len(times)-1 {
 			e = alert.Notifiable(e) // history: transitions only
 		}

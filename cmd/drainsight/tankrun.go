@@ -202,7 +202,7 @@ func (r *tankRun) feed(s *model.Series) {
 		for r.cutNs != 0 && s.TimeNs[i] >= r.cutNs {
 			if cut := r.cutNs; cut > r.prevEvalNs && cut < r.limitNs {
 				at := time.Unix(0, cut).UTC()
-				r.evals = append(r.evals, evaluation{at: at, findings: r.det.Evaluate(at, r.p.detOpt)})
+				r.evals = append(r.evals, evaluate(r.det, at, r.p.detOpt))
 			}
 			r.cutNs += int64(evalEvery)
 		}

@@ -104,6 +104,7 @@ func buildPlan(ct config.Tank) (*plan, error) {
 			EWMALambda:          d.EWMALambda,
 			MaintenanceFraction: d.MaintenanceFraction,
 			GapLimit:            max(d.GapLimit, 15*time.Minute),
+			SilentLimit:         d.FeedSilentLimit,
 		},
 	}, nil
 }
