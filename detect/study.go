@@ -5,6 +5,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"strings"
+	"time"
 
 	"drainsight/model"
 )
@@ -96,7 +97,12 @@ type StudyRow struct {
 	OracleDelayDrains float64
 	FalsePerTankYear  float64
 	TankYears         float64
-	FalseBeforeOnset  int // false findings before the onset in fault runs
+	// Healthy row: routine data gaps simulated per tank-year and the feed
+	// notices they gave (a feed silent past Options.SilentLimit); neither
+	// is a tank finding.
+	GapsPerTankYear        float64
+	FeedNoticesPerTankYear float64
+	FalseBeforeOnset       int // false findings before the onset in fault runs
 }
 
 // Study simulates tank histories and runs the detector on them. Each tank
@@ -303,11 +309,14 @@ func studyHealthy(opt StudyOptions) StudyRow {
 	var years float64
 	one := func(int64) float64 { return 1 }
 	zero := func(int64) float64 { return 0 }
+	notices, gaps := 0, 0
 	for i := 0; i < opt.HealthyTanks; i++ {
 		st := newSimTank(opt.Seed, 999_999, uint64(i))
 		s := NewState(fmt.Sprintf("healthy-%d", i))
 		end := studyStart + int64(opt.HealthyYears*365.25*nsPerDay)
 		nextEval := studyStart + int64(nsPerDay)
+		feed := newRoutineFeed(opt.Seed, uint64(i))
+		silent := false
 		for st.tNs < end {
 			idle, f := st.step(opt, one, zero)
 			s.AddIdle(idle, dopt)
@@ -316,17 +325,68 @@ func studyHealthy(opt StudyOptions) StudyRow {
 				continue
 			}
 			now := nsTime(nextEval)
+			s.AddSeries(feed.until(nextEval), dopt)
 			nextEval += int64(nsPerDay)
+			fs := s.Feed(now, dopt)
+			if fs.State == FeedSilent && !silent {
+				notices++
+			}
+			silent = fs.State == FeedSilent
 			if len(s.Evaluate(now, dopt)) > 0 {
 				falseN++
 				s.restartCharts()
 			}
 		}
+		gaps += feed.gaps
 		years += opt.HealthyYears
 	}
 	row.TankYears = years
 	row.FalsePerTankYear = float64(falseN) / years
+	row.FeedNoticesPerTankYear = float64(notices) / years
+	row.GapsPerTankYear = float64(gaps) / years
 	return row
+}
+
+// routineFeed is the raw level feed of a healthy study tank: a sample every
+// 5 min with a reading that varies (so no stuck run forms), broken by
+// routine data gaps, one per 12 days on average (exponential spacing),
+// lasting 10 min to 8 h (log-uniform): logger restarts and network outages.
+type routineFeed struct {
+	rng    *rand.Rand
+	tNs    int64
+	gapAt  int64
+	gapEnd int64
+	gaps   int
+}
+
+const routineStepNs = int64(5 * time.Minute)
+
+func newRoutineFeed(seed, i uint64) *routineFeed {
+	f := &routineFeed{rng: rand.New(rand.NewPCG(seed^0x9e3779b9, 7_000_000+i)), tNs: studyStart}
+	f.nextGap()
+	return f
+}
+
+func (f *routineFeed) nextGap() {
+	f.gapAt = f.tNs + int64(f.rng.ExpFloat64()*12*nsPerDay)
+	d := math.Exp(math.Log(10*60) + f.rng.Float64()*(math.Log(8*3600)-math.Log(10*60)))
+	f.gapEnd = f.gapAt + int64(d*1e9)
+}
+
+// until returns the samples from the last call up to tNs.
+func (f *routineFeed) until(tNs int64) *model.Series {
+	ser := &model.Series{}
+	for ; f.tNs < tNs; f.tNs += routineStepNs {
+		if f.tNs >= f.gapAt {
+			if f.tNs < f.gapEnd {
+				continue
+			}
+			f.gaps++
+			f.nextGap()
+		}
+		ser.Append(f.tNs, 1+0.002*f.rng.NormFloat64())
+	}
+	return ser
 }
 
 // FormatStudyTable renders the study as a markdown table.
@@ -344,9 +404,9 @@ func FormatStudyTable(rows []StudyRow) string {
 			r.DetectedPct, fmtNum(r.MedianDelayDrains), fmtNum(r.MedianDelayDays), r.CorrectPct, r.SettledPct, fmtNum(r.OracleDelayDrains), r.FalseBeforeOnset)
 	}
 	if len(healthy) > 0 {
-		b.WriteString("\n| healthy tanks | tank-years | false findings per tank-year |\n|---|---|---|\n")
+		b.WriteString("\n| healthy tanks | tank-years | false tank findings per tank-year | routine data gaps per tank-year | feed notices per tank-year |\n|---|---|---|---|---|\n")
 		for _, r := range healthy {
-			fmt.Fprintf(&b, "| %d | %.0f | %.3f |\n", r.Tanks, r.TankYears, r.FalsePerTankYear)
+			fmt.Fprintf(&b, "| %d | %.0f | %.3f | %.1f | %.2f |\n", r.Tanks, r.TankYears, r.FalsePerTankYear, r.GapsPerTankYear, r.FeedNoticesPerTankYear)
 		}
 	}
 	return b.String()

@@ -47,3 +47,31 @@ func TestStudySensor(t *testing.T) {
 		}
 	}
 }
+
+// Routine data gaps (about one per 12 days, 10 min to 8 h) on healthy tanks
+// raise no tank finding: the goal is at most 0.1 false tank findings per
+// healthy tank-year (the project's requirement for gaps; the healthy row's
+// outlet false-alarm rate is set by Options.FalseAlarmYears, 10 years by
+// default). The gaps really happen (about 30 per tank-year) and only those
+// still silent past the 4 h limit at an evaluation give a feed notice.
+func TestStudyRoutineGaps(t *testing.T) {
+	if testing.Short() {
+		t.Skip("study")
+	}
+	rows := Study(StudyOptions{Tanks: 1, Faults: []string{FaultRestrictionAbrupt}, MagnitudesPct: []float64{20},
+		HealthyTanks: 40, HealthyYears: 2})
+	h := rows[len(rows)-1]
+	t.Log("\n" + FormatStudyTable(rows[len(rows)-1:]))
+	if h.Fault != FaultHealthy {
+		t.Fatalf("last row %s, want the healthy row", h.Fault)
+	}
+	if h.GapsPerTankYear < 25 || h.GapsPerTankYear > 36 {
+		t.Errorf("routine gaps %.1f per tank-year, want about 30 (365/12)", h.GapsPerTankYear)
+	}
+	if h.FalsePerTankYear > 0.1 {
+		t.Errorf("false tank findings %.3f per healthy tank-year with routine gaps, want <= 0.1", h.FalsePerTankYear)
+	}
+	if h.FeedNoticesPerTankYear <= 0 || h.FeedNoticesPerTankYear >= h.GapsPerTankYear/4 {
+		t.Errorf("feed notices %.2f per tank-year for %.1f gaps, want some, and far fewer than the gaps", h.FeedNoticesPerTankYear, h.GapsPerTankYear)
+	}
+}
