@@ -31,13 +31,23 @@ import (
 //
 //  1. A first-order autoregression in continuous time (an Ornstein-Uhlenbeck
 //     process, so that irregular sampling and short gaps are handled):
-//     Cov(e_i, e_j) = γ0 ρ^{|t_i - t_j|/Δ}, Δ the median sampling interval.
+//     correlation ρ^{|t_i - t_j|/Δ}, Δ the median sampling interval.
 //     ρ is the lag-1 sample autocorrelation of the residuals over pairs
-//     about Δ apart, corrected for its small-sample bias by (1+3ρ)/N
-//     (Marriott & Pope 1954, "Bias in the estimation of autocorrelations",
-//     Biometrika 41; Kendall 1954) and capped at 0.999. γ0 comes from the
-//     innovations u_i = e_i - φ_i e_{i-1}, φ_i = ρ^{(t_i-t_{i-1})/Δ}:
-//     γ0 = mean u_i^2/(1-φ_i^2). The double sum is O(N): with the forward
+//     about Δ apart or, when white reading noise or counts sit on top of
+//     the autoregression (an ARMA(1,1) error), the ratio of the lag-2 to
+//     the lag-1 autocovariance, with the white part σw^2 = γ0 - γ1/ρ (the
+//     moment estimator). It is corrected for its small-sample bias,
+//     E ρ̂ ≈ ρ - (p + (p+2)ρ)/N for a fit of p parameters (p = 1, a mean:
+//     Marriott & Pope 1954, "Bias in the estimation of autocorrelations",
+//     Biometrika 41, and Kendall 1954; p = 2, a trend; the general p is our
+//     extension of the two), then raised by one standard error
+//     sqrt((1-ρ^2)/N), because the variance factor is convex in ρ and the
+//     estimate's scatter otherwise understates it (measured: 67-88 %
+//     coverage at ρ 0.99 without, 87-95 % with), and capped at 0.999. The
+//     autoregression's variance γ comes from the innovations
+//     u_i = e_i - φ_i e_{i-1}, φ_i = ρ^{(t_i-t_{i-1})/Δ}: γ = mean
+//     u_i^2/(1-φ_i^2), less the white part they carry. Then
+//     Cov(e_i, e_j) = γ ρ^{|t_i-t_j|/Δ} + σw^2 δ_ij. The double sum is O(N): with the forward
 //     filter P_i = x_i + φ_i P_{i-1}, Σ_ij x_i x_jᵀ ρ^{|t_i-t_j|/Δ} =
 //     Σ_i x_i P_iᵀ + (Σ_i x_i P_iᵀ)ᵀ - A.
 //  2. What the autoregression leaves is measured on the standardised
