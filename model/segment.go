@@ -52,17 +52,59 @@ type SegmentOptions struct {
 	EmitFromNs int64
 }
 
-// SegmentStats counts what a Segmenter saw and decided.
+// SegmentStats counts what a Segmenter saw and decided. Falls counts
+// every fall that opened (dropped more than the trigger level) and was
+// decided, except those starting before EmitFromNs (an earlier scan
+// counted them): each is emitted as a drain, rejected for one reason, or
+// still pending at Flush.
 type SegmentStats struct {
-	Samples        int // samples accepted
-	Invalid        int // samples rejected: non-finite head or time not increasing
-	Spikes         int // samples flagged as spikes
-	Drains         int // drain segments emitted
-	Idles          int // idle segments emitted
-	Fills          int // fill segments emitted
-	RejectedSmall  int // falls shorter than MinDuration, below MinDropM or too few samples
-	RejectedInflow int // falls inconsistent with gravity outflow alone (unmetered inflow)
-	Dropped        int // segments dropped because RawStartNs < EmitFromNs
+	Samples int // samples accepted
+	Invalid int // samples rejected: non-finite head or time not increasing
+	Spikes  int // samples flagged as spikes
+	Drains  int // drain segments emitted
+	Idles   int // idle segments emitted
+	Fills   int // fill segments emitted
+	Falls   int // falls seen (see above)
+	// rejected falls, by reason (see FallOutcome)
+	RejectedShort     int // shorter than MinDuration
+	RejectedSmall     int // fell less than MinDropM
+	RejectedFew       int // fewer than 6 samples
+	RejectedTransient int // fewer than 6 samples once the valve transient is trimmed
+	RejectedInflow    int // inconsistent with gravity outflow alone (unmetered inflow)
+	RejectedSlow      int // falls abandoned as too slow for a drain (a leak, a drift, a trickle); not in Falls
+	Pending           int // at Flush: under way, or ending within Settle of the last sample
+	Dropped           int // segments dropped because RawStartNs < EmitFromNs
+}
+
+// FallOutcome is what became of one fall.
+type FallOutcome int
+
+// The outcomes of a fall.
+const (
+	FallDrain         FallOutcome = iota + 1 // emitted as a drain
+	FallTooShort                             // shorter than MinDuration
+	FallTooSmall                             // fell less than MinDropM
+	FallFewSamples                           // fewer than 6 samples
+	FallTransientOnly                        // fewer than 6 samples after the valve transient
+	FallInflow                               // slowed down more than outflow alone allows: something flowed in
+	FallPending                              // under way or within Settle of the last sample at Flush
+)
+
+var fallNames = [...]string{"", "drain", "too short", "too small", "too few samples", "transient only", "inflow", "pending"}
+
+func (o FallOutcome) String() string {
+	if o > 0 && int(o) < len(fallNames) {
+		return fallNames[o]
+	}
+	return "unknown"
+}
+
+// Fall is one fall the Segmenter decided: its start and end as placed
+// (Unix ns), how far the level fell (m) and what became of it.
+type Fall struct {
+	StartNs, EndNs int64
+	DropM          float64
+	Outcome        FallOutcome
 }
 
 const (
@@ -73,8 +115,13 @@ const (
 	spikeSigmas     = 6.0  // spike threshold in σ
 	kneeSigmas      = 1.5  // knee tolerance in σ of the raw reading (≈ 2.7 σ of the median-of-5)
 	minDrainSamples = 6    // fewest kept samples in a drain
-	ratioLo         = 0.6  // accepted range of K(second half)/K(first half)
-	ratioHi         = 1.6
+	// an upward step inside a fall ends it only after lasting this long
+	// (median-of-5 samples and time): a few samples of a few counts or σ
+	// are a sensor artefact, a refill goes on
+	riseConfirmSamples = 6
+	riseConfirmNs      = int64(60e9)
+	ratioLo            = 0.6 // accepted range of K(second half)/K(first half)
+	ratioHi            = 1.6
 )
 
 const (
@@ -94,7 +141,8 @@ const (
 //     previous one are dropped (counted in Stats().Invalid).
 //  2. Noise σ (unless given): robust scatter of second differences.
 //  3. Spikes: a Hampel filter on a centred window of 5 samples; a sample
-//     further than max(6 σ, 3 mm) from the window median is a spike. The
+//     further than max(6 σ, 3 mm) from the window median and from both its
+//     neighbours is a spike. The
 //     median-of-5 level y is exact on any monotone curve, so it keeps the
 //     knees of a drain, and it drives all decisions below.
 //  4. Events: a fall (rise) opens when y drops (rises) more than
@@ -118,6 +166,7 @@ const (
 // A Segmenter is not safe for concurrent use.
 type Segmenter struct {
 	tank     *Tank
+	xf       *HeadTransform // the tank's head transform; nil: unit-area vertical tank
 	id       string
 	opt      SegmentOptions
 	minDurNs int64
@@ -133,6 +182,7 @@ type Segmenter struct {
 	meterSet bool
 	metered  bool
 	finished bool
+	final    bool // FlushFinal: the settle delay no longer holds segments back
 	firstT   int64
 	lastT    int64 // last accepted input time
 	n        int   // accepted samples
@@ -170,6 +220,8 @@ type Segmenter struct {
 	cutBound   int64
 	win        extremes // level extremes over Window, in the quiet state
 	knee       int
+	riseAt     int     // first sample of an upward step inside the current fall; -1: none
+	pre        int     // first sample of the hold before the current fall
 	idleKeep   int     // idle start to resume if the current fall/rise proves slow; -1: none
 	wj         int     // sample about Window before the current one, in a fall/rise
 	ext        float64 // running extreme since the knee (min for a fall, max for a rise)
@@ -186,7 +238,10 @@ type Segmenter struct {
 	lastEmitStart int64
 	anyEmit       bool
 	stats         SegmentStats
+	falls         []Fall
 	scratch       []float64
+	boundIdx      []int
+	bsums         boundSums
 }
 
 // NewSegmenter returns a Segmenter for tank t (its ID names the segments and
@@ -195,6 +250,10 @@ func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
 	s := &Segmenter{tank: t, opt: opt}
 	if t != nil {
 		s.id = t.ID
+		if t.Shape != nil {
+			// an invalid tank falls back to the unit-area transform
+			s.xf, _ = TransformFor(t)
+		}
 	}
 	dur := func(d, def time.Duration) int64 {
 		if d == 0 {
@@ -223,6 +282,7 @@ func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
 	s.setSigma()
 	s.cutAt = math.MaxInt64
 	s.idleKeep = -1
+	s.riseAt = -1
 	return s
 }
 
@@ -389,6 +449,14 @@ func (s *Segmenter) emit(j, p int, med float64) {
 	raw, t := s.rh[p], s.rt[p]
 	spike := math.Abs(raw-med) > s.hthr
 	if spike {
+		// a spike is a lone sample: one that stays close to a neighbour
+		// is a sharp corner of the level (the top of a fill that turns at
+		// once into a drain), not a spike
+		if j > 0 && math.Abs(raw-s.rh[(p+4)%5]) <= s.hthr || j+1 < s.n && math.Abs(raw-s.rh[(p+1)%5]) <= s.hthr {
+			spike = false
+		}
+	}
+	if spike {
 		s.stats.Spikes++
 	}
 	s.ht = append(s.ht, t)
@@ -428,25 +496,112 @@ func (s *Segmenter) Take() []Segment {
 	return out
 }
 
+// TakeFalls returns the falls decided since the last TakeFalls, in the
+// order they were decided: every drain emitted, every fall rejected (with
+// its reason) and, after Flush, every one still pending.
+func (s *Segmenter) TakeFalls() []Fall {
+	s.release()
+	out := s.falls
+	s.falls = nil
+	return out
+}
+
+// rejectFall records a fall [k, e] that is not a drain.
+func (s *Segmenter) rejectFall(k, e int, dropM float64, why FallOutcome) {
+	t0 := s.tAt(k)
+	if t0 < s.emitFrom {
+		return
+	}
+	switch why {
+	case FallTooShort:
+		s.stats.RejectedShort++
+	case FallTooSmall:
+		s.stats.RejectedSmall++
+	case FallFewSamples:
+		s.stats.RejectedFew++
+	case FallTransientOnly:
+		s.stats.RejectedTransient++
+	case FallInflow:
+		s.stats.RejectedInflow++
+	case FallPending:
+		s.stats.Pending++
+	}
+	s.stats.Falls++
+	s.falls = append(s.falls, Fall{StartNs: t0, EndNs: s.tAt(e), DropM: dropM, Outcome: why})
+}
+
 // Flush processes the samples still held by the spike filter and returns
 // the segments released so far. Segments whose end is within Settle of the
 // last sample, and whatever is still under way, are not emitted: a later
-// scan from CommittedNs emits them. The Segmenter accepts no more samples.
+// scan from CommittedNs emits them (they are counted as pending). The
+// Segmenter accepts no more samples.
 func (s *Segmenter) Flush() []Segment {
 	if !s.finished {
-		for j := s.done; j < s.n; j++ {
-			s.filter(j, s.n-1)
+		s.drainHeld()
+		s.release()
+		for _, g := range s.queue {
+			if g.Kind == Drain && g.RawStartNs >= s.emitFrom {
+				s.stats.Pending++
+				s.stats.Falls++
+				s.falls = append(s.falls, Fall{StartNs: g.RawStartNs, EndNs: g.RawEndNs, DropM: g.dropM(), Outcome: FallPending})
+			}
 		}
-		s.finished = true
+		if s.state == stFall && s.iMark > s.knee {
+			s.rejectFall(s.knee, s.iMark, s.yAt(s.knee)-s.yAt(s.iMark), FallPending)
+		}
 	}
 	return s.Take()
+}
+
+// FlushFinal is Flush for a history that is complete (nothing more will
+// come): the fall under way is judged now, as a partial drain when the
+// data end before it levels out, and the segments within Settle of the
+// last sample are emitted too. The idle stretch under way is not emitted.
+// CommittedNs then lies after the last drain, so a later scan over more
+// data does not emit it again (a drain cut by the end of the data stays
+// partial).
+func (s *Segmenter) FlushFinal() []Segment {
+	if !s.finished {
+		s.drainHeld()
+		if last := s.done - 1; last >= 0 {
+			switch s.state {
+			case stFall:
+				s.closeIdle()
+				s.finishDrain(s.knee, s.iMark, last)
+				s.toQuiet(s.done, last)
+			case stRise:
+				s.closeIdle()
+				s.finishFill(s.knee, s.iMark)
+				s.toQuiet(s.done, last)
+			}
+		}
+		s.final = true
+	}
+	return s.Take()
+}
+
+// drainHeld runs the detector on the samples still held by the spike
+// filter and marks the Segmenter finished.
+func (s *Segmenter) drainHeld() {
+	for j := s.done; j < s.n; j++ {
+		s.filter(j, s.n-1)
+	}
+	s.finished = true
+}
+
+// dropM is how far a drain's kept readings fell, m.
+func (g *Segment) dropM() float64 {
+	if len(g.HeadM) == 0 {
+		return 0
+	}
+	return g.HeadM[0] - g.HeadM[len(g.HeadM)-1]
 }
 
 func (s *Segmenter) release() {
 	k := 0
 	for ; k < len(s.queue); k++ {
 		g := &s.queue[k]
-		if s.n == 0 || g.RawEndNs > s.lastT-s.settleNs {
+		if s.n == 0 || (!s.final && g.RawEndNs > s.lastT-s.settleNs) {
 			break
 		}
 		s.lastEmitStart, s.anyEmit = g.RawStartNs, true
@@ -457,6 +612,8 @@ func (s *Segmenter) release() {
 		switch g.Kind {
 		case Drain:
 			s.stats.Drains++
+			s.stats.Falls++
+			s.falls = append(s.falls, Fall{StartNs: g.RawStartNs, EndNs: g.RawEndNs, DropM: g.dropM(), Outcome: FallDrain})
 		case Idle:
 			s.stats.Idles++
 		case Fill:
@@ -537,7 +694,7 @@ func (s *Segmenter) compact() {
 			keep = min(keep, s.win.argMax(), s.win.argMin())
 		}
 	default:
-		keep = min(keep, s.knee)
+		keep = min(keep, s.knee, s.pre)
 		if s.idleKeep >= 0 {
 			keep = min(keep, s.idleKeep)
 		}

@@ -24,12 +24,21 @@ func (s *Segmenter) step(i int, t int64, y float64) {
 		if s.slow(i, t, y) {
 			return
 		}
+		// A rise ends the fall only once it has lasted: an upward step of
+		// a few samples (sensor counts, a wave, a bubble) is not a refill.
 		if y > s.ext+s.trig {
-			k := s.kneeUp(s.iExt, i)
-			s.closeIdle()
-			s.finishDrain(s.knee, s.iMark, k-1)
-			s.beginRise(k, i)
-			return
+			if s.riseAt < 0 {
+				s.riseAt = i
+			}
+			if i-s.riseAt+1 >= riseConfirmSamples && t-s.tAt(s.riseAt) >= riseConfirmNs {
+				k := s.kneeUp(s.iExt, i)
+				s.closeIdle()
+				s.finishDrain(s.knee, s.iMark, k-1)
+				s.beginRise(k, i)
+				return
+			}
+		} else {
+			s.riseAt = -1
 		}
 		if t-s.tAt(s.iMark) > s.timeoutNs && s.stalled(t) {
 			s.closeIdle()
@@ -51,7 +60,7 @@ func (s *Segmenter) step(i int, t int64, y float64) {
 			k := s.kneeDown(s.iExt, i)
 			s.closeIdle()
 			s.finishFill(s.knee, s.iMark)
-			s.beginFall(k, i)
+			s.beginFall(k, i, s.iMark)
 			return
 		}
 		if t-s.tAt(s.iMark) > s.timeoutNs && s.stalled(t) {
@@ -68,7 +77,7 @@ func (s *Segmenter) step(i int, t int64, y float64) {
 func (s *Segmenter) quietStep(i int, t int64, y float64) {
 	if m := s.win.argMax(); y < s.yAt(m)-s.trig {
 		k := s.kneeDown(m, i)
-		s.beginFall(k, i)
+		s.beginFall(k, i, s.stateStart)
 		s.idleKeep = s.idleStart
 		return
 	}
@@ -172,14 +181,20 @@ func (s *Segmenter) slow(i int, t int64, y float64) bool {
 		return false
 	}
 	keep := s.idleKeep
+	if s.state == stFall && s.tAt(s.knee) >= s.emitFrom {
+		s.stats.RejectedSlow++
+	}
 	s.toQuiet(max(s.stateStart, s.idleKeep, s.wj), i)
 	s.idleStart, s.idleKeep = keep, -1
 	s.setCut()
 	return true
 }
 
-func (s *Segmenter) beginFall(k, i int) {
-	s.state, s.knee, s.wj, s.idleKeep = stFall, k, k, -1
+// beginFall opens a fall at knee k, triggered at i; the hold before it
+// began at sample pre.
+func (s *Segmenter) beginFall(k, i, pre int) {
+	s.state, s.knee, s.wj, s.idleKeep, s.riseAt = stFall, k, k, -1, -1
+	s.pre = min(max(pre, k-boundPreMax, s.base), k)
 	s.ext, s.iExt = s.yAt(k), k
 	s.mark, s.iMark = s.yAt(k), k
 	for j := k + 1; j <= i; j++ {
@@ -378,19 +393,27 @@ func (s *Segmenter) minDrop() float64 {
 }
 
 // finishDrain judges the fall from knee k to the last mark e, with the
-// plateau (e, d] after it.
+// plateau (e, d] after it. The start and the end are placed from the
+// physics (see segment_bounds.go): the join of the hold and the fall in
+// F, the join of the fall and the hold after it, or the time the line in
+// F reaches zero on a drain that ran dry.
 func (s *Segmenter) finishDrain(k, e, d int) {
 	if e <= k {
-		s.stats.RejectedSmall++
+		s.rejectFall(k, max(e, k), 0, FallTooSmall)
 		return
 	}
-	k = s.refineStart(k, e)
-	e = s.refineEnd(k, e)
-	tk := s.tAt(k)
-	drop := s.yAt(k) - s.yAt(e)
-	if s.tAt(e)-tk < s.minDurNs || drop < s.minDrop() {
-		s.stats.RejectedSmall++
-		return
+	// The plateau after the fall starts where the level first comes
+	// within kneeSigmas σ of its lowest value: the last mark may lie on
+	// the plateau itself when noise made new lows there.
+	lowest := s.yAt(e)
+	for j := e + 1; j <= d; j++ {
+		lowest = min(lowest, s.yAt(j))
+	}
+	for j := k + 1; j < e; j++ {
+		if s.yAt(j) <= lowest+kneeSigmas*s.sigma {
+			e = j
+			break
+		}
 	}
 	// plateau median
 	p := math.NaN()
@@ -407,50 +430,71 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 			e--
 		}
 	}
+	if kk := s.placeStart(s.pre, k, e, 0); kk < e {
+		k = kk
+	}
+	tk := s.tAt(k)
+	drop := s.yAt(k) - s.yAt(e)
+	if s.tAt(e)-tk < s.minDurNs {
+		s.rejectFall(k, e, drop, FallTooShort)
+		return
+	}
+	if drop < s.minDrop() {
+		s.rejectFall(k, e, drop, FallTooSmall)
+		return
+	}
 	tol := s.opt.EmptyHeadM
 	if !(tol > 0) {
 		tol = max(5*s.sigma, 0.01*drop)
 	}
-	a := k
-	for a < e && s.tAt(a)-tk < s.transNs {
-		a++
-	}
-	b := e
+	a := s.afterTransient(k, e)
 	complete := false
 	if !math.IsNaN(p) {
-		bc := b
+		bc := e
 		for bc > a && s.yAt(bc) < p+tol {
 			bc--
 		}
-		if math.Abs(p) <= tol {
-			complete = true
-		} else {
-			rc := s.kRatio(a, bc, p)
-			r0 := s.kRatio(a, b, 0)
-			lc, l0 := math.Abs(math.Log(rc)), math.Abs(math.Log(r0))
-			complete = lc < l0 || (math.IsNaN(l0) && !math.IsNaN(lc))
-		}
-		if complete {
-			b = bc
+		// a fall fed by metered inflow does not arrive on its plateau the
+		// way a free drain does: only a plateau at zero head is the outlet
+		complete = math.Abs(p) <= tol || bc > a && !s.inflowIn(k, d) && s.ranDry(k, e, d, p, tol)
+	}
+	datum := 0.0
+	switch {
+	case complete:
+		datum = p
+		e = s.placeEmpty(k, e, d, p, tol)
+	case !math.IsNaN(p):
+		if ee := s.placeClose(k, e, d, 0); ee > k {
+			e = ee
 		}
 	}
-	kept := 0
-	for j := a; j <= b; j++ {
+	a = s.afterTransient(k, e)
+	b := e
+	if complete {
+		for b > a && s.yAt(b) < p+tol {
+			b--
+		}
+	}
+	kept, all := 0, 0
+	for j := k; j <= b; j++ {
 		if !s.spikeAt(j) {
-			kept++
+			all++
+			if j >= a {
+				kept++
+			}
 		}
 	}
 	if kept < minDrainSamples {
-		s.stats.RejectedSmall++
+		why := FallFewSamples
+		if all >= minDrainSamples {
+			why = FallTransientOnly
+		}
+		s.rejectFall(k, e, drop, why)
 		return
-	}
-	datum := 0.0
-	if complete {
-		datum = p
 	}
 	r := s.kRatio(a, b, datum)
 	if !(r >= ratioLo && r <= ratioHi) {
-		s.stats.RejectedInflow++
+		s.rejectFall(k, e, drop, FallInflow)
 		return
 	}
 	g := Segment{Tank: s.id, Kind: Drain, RawStartNs: tk, RawEndNs: s.tAt(e), Complete: complete, EmptyHeadM: math.NaN()}
@@ -472,67 +516,27 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 	s.queue = append(s.queue, g)
 }
 
-// localRate is the fall rate (m/s) of the level from sample j to j+w.
-func (s *Segmenter) localRate(j, w int) float64 {
-	return (s.yAt(j) - s.yAt(j+w)) / (float64(s.tAt(j+w)-s.tAt(j)) * 1e-9)
+// inflowIn reports whether metered inflow ran during [a, b].
+func (s *Segmenter) inflowIn(a, b int) bool {
+	if !s.metered {
+		return false
+	}
+	for _, q := range s.hq[a-s.base : b-s.base+1] {
+		if q > 0 {
+			return true
+		}
+	}
+	return false
 }
 
-// refineStart moves the start of the fall [k, e] past a slow leading fall
-// (a leak or drift that opened the candidate before the valve did): the
-// drain starts where the local fall rate, over windows of w = n/16 samples,
-// first reaches a quarter of its largest value; the knee is then the last
-// sample within 1.5 σ of the level there.
-func (s *Segmenter) refineStart(k, e int) int {
-	// twice: the second pass uses a window scaled to the fall itself
-	for range 2 {
-		w := max(3, (e-k)/16)
-		if e-k < 4*w {
-			break
-		}
-		rmax := 0.0
-		for j := k; j+w <= e; j++ {
-			rmax = max(rmax, s.localRate(j, w))
-		}
-		j := k
-		for j+w <= e && s.localRate(j, w) < 0.25*rmax {
-			j++
-		}
-		if j <= k+w {
-			break
-		}
-		thr := s.yAt(j) - kneeSigmas*s.sigma
-		kn := j
-		for i := j; i <= j+w; i++ {
-			if s.yAt(i) >= thr {
-				kn = i
-			}
-		}
-		k = kn
+// afterTransient is the first sample of [k, e] at least the transient
+// time after k (e when none).
+func (s *Segmenter) afterTransient(k, e int) int {
+	a, tk := k, s.tAt(k)
+	for a < e && s.tAt(a)-tk < s.transNs {
+		a++
 	}
-	return k
-}
-
-// refineEnd cuts a slow tail off the fall (a leak after the valve closed,
-// or the last creep onto the empty plateau): the fall ends where the local
-// rate last reaches 3 % of its largest value. The samples cut off join
-// the plateau.
-func (s *Segmenter) refineEnd(a, b int) int {
-	w := max(3, (b-a)/16)
-	if b-a < 4*w {
-		return b
-	}
-	rmax := 0.0
-	for j := a; j+w <= b; j++ {
-		rmax = max(rmax, s.localRate(j, w))
-	}
-	j := b - w
-	for j > a && s.localRate(j, w) < 0.03*rmax {
-		j--
-	}
-	if j+w >= b-w {
-		return b
-	}
-	return j + w
+	return a
 }
 
 // kRatio is K over the second half of [a, b] divided by K over the first,
