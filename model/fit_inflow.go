@@ -121,6 +121,7 @@ func fitInflow(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratc
 	if lf.ss > 0 {
 		fit.DurbinWatson = dwNum / lf.ss
 	}
+	inflowSerial(fit, lf, x, y, tau, sc.w)
 	fit.H0M = seg.HeadM[first] - d0
 	fit.H1M = seg.HeadM[last] - d0
 	if inv, ok := lsq.InverseSPD(ata[:], 3); ok && lf.n > 3 {
@@ -145,4 +146,43 @@ func fitInflow(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratc
 		}
 	}
 	return nil
+}
+
+// inflowSerial corrects the standard error of K of the volume-balance line
+// for serially correlated residuals, as the level fit does (see serialCov):
+// on the weighted residuals sqrt(w_i)(Y_i - c + K X_i) and the weighted
+// columns sqrt(w_i)(1, X_i) of the kept points, in time order.
+func inflowSerial(fit *Fit, lf lineFit, x, y, tau, w []float64) {
+	var tt, r, cols []float64
+	var ata [4]float64
+	for i, wi := range w {
+		if !(wi > 0) {
+			continue
+		}
+		sw := math.Sqrt(wi)
+		tt = append(tt, tau[i])
+		r = append(r, sw*(y[i]-lf.a-lf.b*x[i]))
+		c0, c1 := sw, sw*x[i]
+		cols = append(cols, c0, c1)
+		ata[0] += c0 * c0
+		ata[1] += c0 * c1
+		ata[2] += c0 * c1
+		ata[3] += c1 * c1
+	}
+	fit.EffectiveN = len(r)
+	sf := serialCov(tt, r, cols, 2, 2, ata[:], make([]float64, len(r)))
+	fit.ResidualRho = sf.Rho
+	if sf.Omega == nil {
+		return
+	}
+	ck := subCov(ata[:], sf.Omega, 2, 2)
+	if ck == nil || !(ck[3] > 0) {
+		return
+	}
+	if se := math.Sqrt(ck[3]); se > fit.KSEM25s {
+		fit.EffectiveN = max(int(float64(len(r))*(fit.KSEM25s/se)*(fit.KSEM25s/se)), 3)
+		fit.KSEM25s = se
+		tq := tQuantile975(fit.EffectiveN - 2)
+		fit.KLo95M25s, fit.KHi95M25s = fit.KM25s-tq*se, fit.KM25s+tq*se
+	}
 }

@@ -231,6 +231,24 @@ func TestFitInflow(t *testing.T) {
 	if math.Abs(f.Exponent-0.5) > 4*f.ExponentSE {
 		t.Errorf("exponent got %g ± %g, want 0.5", f.Exponent, f.ExponentSE)
 	}
+	// The same drain read with AR(1) noise of ρ 0.98 per sample: the
+	// serial correction widens the interval (the classical one would be
+	// about sqrt((1+ρ)/(1-ρ)) = 10 times too narrow) and it still covers.
+	e := 0.0
+	seg2 := *seg
+	seg2.HeadM = slices.Clone(seg.HeadM)
+	for i := range seg2.HeadM {
+		e = 0.98*e + 0.001*math.Sqrt(1-0.98*0.98)*rng.NormFloat64()
+		seg2.HeadM[i] += e
+	}
+	g, err := FitDrain(tank, &seg2, FitOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if g.EffectiveN*5 > g.N || g.KSEM25s < 3*f.KSEM25s || g.KLo95M25s > k || g.KHi95M25s < k {
+		t.Errorf("correlated noise: K %g ± %g [%g, %g], effective samples %d of %d; want the interval widened (white: ± %g) and covering %g",
+			g.KM25s, g.KSEM25s, g.KLo95M25s, g.KHi95M25s, g.EffectiveN, g.N, f.KSEM25s, k)
+	}
 }
 
 // Discharge coefficients of free outlets (EB1911 "Hydraulics", §17 and §20:
