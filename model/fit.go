@@ -159,7 +159,7 @@ func FitDrain(t *Tank, seg *Segment, opt FitOptions) (Fit, error) {
 		Tank: name, StartNs: seg.TimeNs[0], EndNs: seg.TimeNs[n-1],
 		Complete: seg.Complete, EmptyHeadM: seg.EmptyHeadM, Cd: math.NaN(),
 		Exponent: math.NaN(), ExponentSE: math.NaN(), DurbinWatson: math.NaN(),
-		ResidualRho: math.NaN(), Gaps: seg.GapCount,
+		ResidualRho: math.NaN(), KPerExponent: math.NaN(), Gaps: seg.GapCount,
 	}
 	if !seg.Complete {
 		fit.EmptyHeadM = math.NaN()
@@ -501,6 +501,7 @@ func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d fl
 			}
 		}
 		fit.Exponent = 0.5 + step[np]
+		fit.KPerExponent = kPerExponent(ata[:na*na], na, np)
 		if df := len(tt) - na; df > 0 {
 			fit.ExponentSE = math.Sqrt(ss / float64(df) * inv[np*na+np])
 		}
@@ -693,4 +694,44 @@ func (g GradeThresholds) Grade(f *Fit) (Quality, string) {
 		return QualityB, reason
 	}
 	return QualityA, ""
+}
+
+// kPerExponent returns dK/dn, how the outlet constant of the model
+// q = K_n h^n fitted to the same drain moves with the exponent held at n
+// near 1/2: with the augmented normal matrix A (columns θ = (F0, K[, d])
+// and n last), K_n ≈ K - (A_θθ^-1 A_θn)_K (n - 1/2) (the conditional
+// least-squares step). NaN when A_θθ is singular.
+func kPerExponent(ata []float64, na, np int) float64 {
+	a := make([]float64, np*np)
+	for i := range np {
+		for j := range np {
+			a[i*np+j] = ata[i*na+j]
+		}
+	}
+	inv, ok := lsq.InverseSPD(a, np)
+	if !ok {
+		return math.NaN()
+	}
+	var v float64
+	for j := range np {
+		v += inv[np+j] * ata[j*na+np]
+	}
+	return -v
+}
+
+// KAtReference returns the outlet constant of the fit expressed at the
+// exponent n and the reference head hRefM: q(h_ref)/sqrt(h_ref) of the
+// outlet q = K_n h^n, K_n = K + KPerExponent (n - 1/2). For n = 1/2 it is
+// K itself. It is how drains of an outlet that departs from the
+// square-root law consistently (a long tube, a valve in transitional flow)
+// compare: a partial drain from the top and a full drain weigh different
+// heads, and their square-root K differ by about (h1/h2)^(n-1/2), while
+// their K at one reference head agree. The relative standard error is
+// that of K (the exponent is the tank's, not this drain's).
+func KAtReference(f Fit, n, hRefM float64) float64 {
+	if n == 0.5 || math.IsNaN(n) || !(hRefM > 0) || math.IsNaN(f.KPerExponent) {
+		return f.KM25s
+	}
+	kn := f.KM25s + f.KPerExponent*(n-0.5)
+	return kn * math.Pow(hRefM, n-0.5)
 }

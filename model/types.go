@@ -122,6 +122,7 @@ type Fit struct {
 	R2            float64
 	Exponent      float64
 	ExponentSE    float64
+	KPerExponent  float64 // dK/dn of the model q = K_n h^n on this drain near n = 1/2 (see KAtReference); NaN when not computed
 	DurbinWatson  float64
 	ResidualRho   float64 // lag-1 autocorrelation of the residuals, bias-corrected when significant; NaN when not computed
 	EffectiveN    int     // samples' worth of independent information after the serial correlation; N when white
