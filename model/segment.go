@@ -221,6 +221,8 @@ type Segmenter struct {
 	win        extremes // level extremes over Window, in the quiet state
 	knee       int
 	riseAt     int     // first sample of an upward step inside the current fall; -1: none
+	blipUntil  int     // last sample of an upward step that did not last; -1: none
+	blipRef    float64 // readings above it up to blipUntil belong to that step
 	pre        int     // first sample of the hold before the current fall
 	idleKeep   int     // idle start to resume if the current fall/rise proves slow; -1: none
 	wj         int     // sample about Window before the current one, in a fall/rise
@@ -282,7 +284,7 @@ func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
 	s.setSigma()
 	s.cutAt = math.MaxInt64
 	s.idleKeep = -1
-	s.riseAt = -1
+	s.riseAt, s.blipUntil = -1, -1
 	return s
 }
 

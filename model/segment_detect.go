@@ -37,8 +37,11 @@ func (s *Segmenter) step(i int, t int64, y float64) {
 				s.beginRise(k, i)
 				return
 			}
-		} else {
-			s.riseAt = -1
+		} else if s.riseAt >= 0 {
+			s.dropBlip(i)
+		}
+		if i <= s.blipUntil && s.hr[i-s.base] > s.blipRef {
+			s.markBlip(i)
 		}
 		if t-s.tAt(s.iMark) > s.timeoutNs && s.stalled(t) {
 			s.closeIdle()
@@ -190,10 +193,33 @@ func (s *Segmenter) slow(i int, t int64, y float64) bool {
 	return true
 }
 
+// dropBlip ends an upward step inside the fall that did not last (the
+// level is back at i): its samples, from two before the first median of
+// the step (the median lags the raw reading by two samples) to two after
+// i, are set aside as spikes when they read more than half the trigger
+// level above the level before the step.
+func (s *Segmenter) dropBlip(i int) {
+	s.blipRef = s.yAt(max(s.riseAt-1, s.base)) + 0.5*s.trig
+	s.blipUntil = i + 2
+	for j := max(s.riseAt-2, s.base); j < i; j++ {
+		if s.hr[j-s.base] > s.blipRef {
+			s.markBlip(j)
+		}
+	}
+	s.riseAt = -1
+}
+
+func (s *Segmenter) markBlip(j int) {
+	if x := j - s.base; !s.hk[x] {
+		s.hk[x] = true
+		s.stats.Spikes++
+	}
+}
+
 // beginFall opens a fall at knee k, triggered at i; the hold before it
 // began at sample pre.
 func (s *Segmenter) beginFall(k, i, pre int) {
-	s.state, s.knee, s.wj, s.idleKeep, s.riseAt = stFall, k, k, -1, -1
+	s.state, s.knee, s.wj, s.idleKeep, s.riseAt, s.blipUntil = stFall, k, k, -1, -1, -1
 	s.pre = min(max(pre, k-boundPreMax, s.base), k)
 	s.ext, s.iExt = s.yAt(k), k
 	s.mark, s.iMark = s.yAt(k), k
