@@ -83,6 +83,12 @@ type Reference struct {
 	SetAtNs   int64   `json:"set_at_ns"`
 	SpanKS    float64 `json:"span_k"` // median of (fitted drain span × K), m^2.5, for drain-time forecasts
 	KM25s     float64 `json:"k_m25s"`
+	// Exponent and HRefM: when the baseline drains agree on an exponent
+	// off the square-root law (see referenceExponent), every K is compared
+	// at that exponent and this reference head (model.KAtReference);
+	// 0: the square-root law, K as fitted.
+	Exponent float64 `json:"exponent,omitempty"`
+	HRefM    float64 `json:"h_ref_m,omitempty"`
 }
 
 // Point is one accepted drain: time (end of the fit), ln K, the relative
@@ -94,6 +100,13 @@ type Point struct {
 	SERel  float64 `json:"se"`
 	SpanS  float64 `json:"span"`
 	Z      float64 `json:"z"`
+	// The drain's own fit, kept so that LnK can be restated at the tank's
+	// exponent (Reference.Exponent): square-root K, dK/dn, exponent and
+	// mid-drain head (m).
+	KRaw  float64 `json:"k_raw,omitempty"`
+	KdN   float64 `json:"k_dn,omitempty"`
+	Exp   float64 `json:"n,omitempty"`
+	HMidM float64 `json:"h_mid_m,omitempty"`
 }
 
 // IdlePoint is one idle period: leak constant and its standard error, the
@@ -194,7 +207,13 @@ func (s *State) AddFit(f model.Fit, opt Options) {
 	}
 	s.minScatter2 = opt.MinScatter * opt.MinScatter
 	s.FitTimesNs = appendCapped(s.FitTimesNs, f.EndNs, maxFreq)
-	p := Point{TimeNs: f.EndNs, LnK: math.Log(f.KM25s), SERel: se, SpanS: float64(f.EndNs-f.StartNs) / 1e9}
+	p := Point{TimeNs: f.EndNs, LnK: math.Log(f.KM25s), SERel: se, SpanS: float64(f.EndNs-f.StartNs) / 1e9,
+		KRaw: f.KM25s, KdN: nanZero(f.KPerExponent), Exp: nanZero(f.Exponent), HMidM: 0.5 * (f.H0M + f.H1M)}
+	if s.Ref.Set && s.Ref.Exponent != 0 {
+		if k := model.KAtReference(f, s.Ref.Exponent, s.Ref.HRefM); k > 0 && !math.IsInf(k, 0) {
+			p.LnK = math.Log(k)
+		}
+	}
 
 	if !s.Ref.Set {
 		s.Learn = append(s.Learn, p)
@@ -254,6 +273,7 @@ func (s *State) refDerived() {
 // and scaled MAD of ln K (about ln DesignKM25s when given) screen out drains
 // beyond 3.5 MAD, and the rest seed the running sums.
 func (s *State) setReference(opt Options) {
+	nb, href := s.referenceExponent()
 	x := make([]float64, len(s.Learn))
 	spanK := make([]float64, len(s.Learn))
 	for i, p := range s.Learn {
@@ -270,7 +290,7 @@ func (s *State) setReference(opt Options) {
 		dev[i] = math.Abs(v - ref)
 	}
 	mad := 1.4826 * median(dev)
-	s.Ref = Reference{Set: true, Design: design, BaseLnK: ref, MAD: mad, SpanKS: median(spanK)}
+	s.Ref = Reference{Set: true, Design: design, BaseLnK: ref, MAD: mad, SpanKS: median(spanK), Exponent: nb, HRefM: href}
 	if design {
 		s.Ref.LnK = ref
 	}
@@ -467,4 +487,54 @@ func (s *State) Reset(at time.Time, action string) error {
 		return fmt.Errorf("detect: tank %s: unknown maintenance action %q (want cleaned, repaired, replaced or sensor-calibrated)", s.Tank, action)
 	}
 	return nil
+}
+
+// exponentDevRef is how far from 1/2 the median exponent of the baseline
+// drains must be for K to be compared at the tank's exponent. Real free
+// outlets show 0.5-0.65 (a coefficient drifting with the Reynolds number,
+// sensor lag), a long tube or a valve in transitional flow more; below
+// 0.02 the restatement changes K by well under the scatter of a fit.
+const exponentDevRef = 0.02
+
+// referenceExponent decides, from the baseline drains, whether the tank's
+// outlet departs from the square-root law consistently: the median
+// exponent n_b of the baseline fits (at least 3 with one) is at least
+// exponentDevRef from 1/2. Then the reference head is the median mid-drain
+// head and every baseline point's K is restated at (n_b, h_ref) by
+// model.KAtReference, as AddFit does for every later drain, so that
+// partial and full drains of a healthy outlet agree. It returns n_b and
+// h_ref, or zeros when K stays as fitted.
+func (s *State) referenceExponent() (nb, hRefM float64) {
+	var ns, hs []float64
+	for _, p := range s.Learn {
+		if p.Exp != 0 && p.KdN != 0 && p.HMidM > 0 {
+			ns = append(ns, p.Exp)
+			hs = append(hs, p.HMidM)
+		}
+	}
+	if len(ns) < 3 || len(ns) < len(s.Learn)/2 {
+		return 0, 0
+	}
+	nb = median(ns)
+	if math.Abs(nb-0.5) < exponentDevRef {
+		return 0, 0
+	}
+	hRefM = median(hs)
+	for i, p := range s.Learn {
+		if p.KdN == 0 || !(p.KRaw > 0) {
+			continue
+		}
+		k := model.KAtReference(model.Fit{KM25s: p.KRaw, KPerExponent: p.KdN}, nb, hRefM)
+		if k > 0 && !math.IsInf(k, 0) {
+			s.Learn[i].LnK = math.Log(k)
+		}
+	}
+	return nb, hRefM
+}
+
+func nanZero(x float64) float64 {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return 0
+	}
+	return x
 }
