@@ -107,6 +107,9 @@ type Fall struct {
 	Outcome        FallOutcome
 }
 
+// DefaultSettle is the settle delay used when SegmentOptions.Settle is 0.
+const DefaultSettle = 30 * time.Minute
+
 const (
 	noiseFloorM     = 1e-4 // smallest σ used, m
 	noiseDefaultM   = 1e-3 // σ used before any estimate, m
@@ -266,7 +269,7 @@ func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
 	s.minDurNs = dur(opt.MinDuration, 2*time.Minute)
 	s.transNs = max(dur(opt.Transient, 15*time.Second), 0)
 	s.gapNs = dur(opt.GapLimit, 5*time.Minute)
-	s.settleNs = dur(opt.Settle, 30*time.Minute)
+	s.settleNs = dur(opt.Settle, DefaultSettle)
 	s.stallNs = s.settleNs
 	if s.settleNs <= 0 {
 		s.settleNs = 0

@@ -18,8 +18,10 @@ import (
 const checkAbout = `Validates a configuration file, reporting every problem at once with its
 line and field, and says what a scan would read: the files each tank's globs
 match now, and, for InfluxDB sites, the result of a real query (a ping alone
-succeeds on 1.8 even with a wrong password). Exit status 1 when anything is
-wrong.`
+succeeds on 1.8 even with a wrong password). It segments the first 14 days of
+each file tank's data and warns when the settings reject every fall in them
+(a minimum duration longer than any drain, say). Exit status 1 when anything
+is wrong; warnings do not change it.`
 
 func runCheck(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "check", "check --config FILE", checkAbout)
@@ -67,6 +69,7 @@ func runCheck(ctx context.Context, e *env, args []string) error {
 			p.cfg.Sensor.Kind, p.cfg.Sensor.Unit, src.Format, read)
 	}
 	tw.Flush()
+	warnRejectAll(ctx, w, plans)
 	if !*offline {
 		clients, err := openClients(cfg)
 		if err == nil {

@@ -30,7 +30,15 @@ that came and went between passes are reported with their dates.
 Writes DIR/events.jsonl (the drains fitted in this pass) and
 DIR/findings.jsonl (every transition of the pass and the state at the end:
 new, ongoing or cleared), notifies the new and cleared findings of the last
-24 h, and prints a short summary. A tank's first InfluxDB scan reads 7 days;
+24 h, and prints a short summary: how many falls were seen, fitted as
+drains, rejected (too short, too small, too few samples, transient only,
+inflow) and pending (under way, or ending within the settle delay of the
+tank's last sample: left for the next scan); -v lists each fall.
+
+With --final, or for a tank whose last sample is more than the settle delay
+before --now, a file history is taken as complete: a drain that runs into
+its end is fitted as a partial drain if it meets the minimums, and no drain
+is held back. A tank's first InfluxDB scan reads 7 days;
 for more, run backfill (with --reanalyse once a tank has been scanned).
 
 Running scan again over the same data fits nothing twice and repeats no alert.
@@ -45,7 +53,8 @@ func runScan(ctx context.Context, e *env, args []string) error {
 	statePath := fs.String("state", "", "state file (default: outputs.state_file of the config)")
 	nowFlag := fs.String("now", "", "evaluation time, RFC 3339 (default: newest sample for files, the clock for InfluxDB)")
 	failOn := fs.Bool("fail-on-findings", false, "exit with status 3 when a finding is active")
-	verbose := fs.Bool("v", false, "debug logging")
+	final := fs.Bool("final", false, "the file histories are complete: fit a drain that runs into the end of a tank's data as a partial drain and\nhold back no drain for the settle delay (automatic for a tank whose last sample is more than the settle\ndelay before --now)")
+	verbose := fs.Bool("v", false, "debug logging; lists every fall with its times and what became of it")
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
 	}
@@ -61,7 +70,7 @@ func runScan(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	res, err := scanOnce(ctx, e, cfg, *outDir, *statePath, scanOptions{now: now}, log)
+	res, err := scanOnce(ctx, e, cfg, *outDir, *statePath, scanOptions{now: now, final: *final}, log)
 	if err != nil {
 		return err
 	}
@@ -334,6 +343,7 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 	if p := res.ingest.Problems(); p > 0 {
 		fmt.Fprintf(w, "Input problems: %d (see the log for file:line examples).\n", p)
 	}
+	printFalls(w, res.outcomes)
 	for _, o := range res.failed() {
 		fmt.Fprintf(w, "FAILED %s: %v\n", o.tank, o.err)
 	}
@@ -347,6 +357,52 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 		fmt.Fprintln(w, alert.Caution)
 	}
 	fmt.Fprintf(w, "Outputs: %s, %s\n", filepath.Join(outDir, "events.jsonl"), filepath.Join(outDir, "findings.jsonl"))
+}
+
+// printFalls writes what became of the falls of the pass: how many were
+// seen, fitted, rejected by reason and left pending.
+func printFalls(w io.Writer, outcomes []tankOutcome) {
+	var st model.SegmentStats
+	fitFailed := 0
+	for _, o := range outcomes {
+		s := o.seg
+		st.Falls += s.Falls
+		st.Drains += s.Drains
+		st.RejectedShort += s.RejectedShort
+		st.RejectedSmall += s.RejectedSmall
+		st.RejectedFew += s.RejectedFew
+		st.RejectedTransient += s.RejectedTransient
+		st.RejectedInflow += s.RejectedInflow
+		st.Pending += s.Pending
+		fitFailed += o.fitFailed
+	}
+	fmt.Fprintf(w, "Falls: %d seen, %d drains (%d fitted", st.Falls, st.Drains, st.Drains-fitFailed)
+	if fitFailed > 0 {
+		fmt.Fprintf(w, ", %d fits failed", fitFailed)
+	}
+	fmt.Fprint(w, ")")
+	var rej []string
+	for _, r := range []struct {
+		n    int
+		what string
+	}{
+		{st.RejectedShort, "too short"},
+		{st.RejectedSmall, "too small"},
+		{st.RejectedFew, "too few samples"},
+		{st.RejectedTransient, "transient only"},
+		{st.RejectedInflow, "inflow"},
+	} {
+		if r.n > 0 {
+			rej = append(rej, fmt.Sprintf("%d %s", r.n, r.what))
+		}
+	}
+	if len(rej) > 0 {
+		fmt.Fprintf(w, ", rejected: %s", strings.Join(rej, ", "))
+	}
+	if st.Pending > 0 {
+		fmt.Fprintf(w, ", %d pending (under way or within the settle delay of the end of the data: the next scan, or --final, fits them)", st.Pending)
+	}
+	fmt.Fprintln(w, ".")
 }
 
 // printFeeds writes the feeds' status: how many are ok, in a gap or

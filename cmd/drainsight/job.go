@@ -99,6 +99,12 @@ type scanOptions struct {
 	// reanalyse forgets every tank's fits, detector state and checkpoint
 	// before the pass (maintenance and alert records are kept).
 	reanalyse bool
+	// final: the file histories are complete (scan --final): a drain
+	// running into the end of a tank's data is fitted as a partial drain,
+	// and drains within the settle delay of it are not held back. Also set
+	// per tank when now was given and is past the tank's last sample by
+	// more than the settle delay.
+	final bool
 }
 
 // tankOutcome is what one tank gave in one pass.
@@ -116,6 +122,11 @@ type tankOutcome struct {
 	// detection gap limit) that overlap this pass: the feed's status, shown
 	// in the summary, never a finding.
 	gaps []detect.Gap
+	// seg counts what the segmenter saw and decided; falls lists each
+	// fall; fitFailed counts drains whose fit failed.
+	seg       model.SegmentStats
+	falls     []model.Fall
+	fitFailed int
 }
 
 // feed returns the tank's feed status at the last evaluation.
@@ -249,7 +260,7 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	}
 	res.now = now
 	for _, f := range fileOuts {
-		record(f.finish(now))
+		record(f.finish(now, opt.final || !opt.now.IsZero() && f.pastSettle(now)))
 	}
 	for _, o := range j.scanInflux(ctx, influxTanks, now, opt) {
 		record(o)
@@ -272,14 +283,30 @@ type fileTank struct {
 	out tankOutcome
 }
 
-// finish commits the tank (unless it failed) and evaluates it at now.
-func (f *fileTank) finish(now time.Time) tankOutcome {
+// pastSettle reports whether now is past the tank's last sample of this
+// pass by more than its settle delay (no sample: false).
+func (f *fileTank) pastSettle(now time.Time) bool {
+	if f.run == nil || f.run.total == 0 {
+		return false
+	}
+	settle := f.run.p.segOpt.Settle
+	if settle == 0 {
+		settle = model.DefaultSettle
+	}
+	return now.UnixNano()-f.run.lastNs > int64(max(settle, 0))
+}
+
+// finish commits the tank (unless it failed) and evaluates it at now; with
+// complete set the tank's history is taken as complete.
+func (f *fileTank) finish(now time.Time, complete bool) tankOutcome {
 	o := f.out
 	if o.err != nil || f.run == nil {
 		return o
 	}
-	o.samples, o.drains, o.reset = f.run.total, f.run.drains, f.run.maintChanged
+	f.run.complete = complete
 	o.fits, o.err = f.run.commit(true, now.UnixNano())
+	o.samples, o.drains, o.reset = f.run.total, f.run.drains, f.run.maintChanged
+	o.seg, o.falls, o.fitFailed = f.run.seg.Stats(), f.run.falls, f.run.fitErr
 	if o.err == nil {
 		o.evals = append(f.run.evals, evaluate(f.run.det, now, f.run.p.detOpt))
 		o.gaps = f.run.det.GapsBetween(time.Unix(0, f.run.prevEvalNs), now)

@@ -67,8 +67,15 @@ type tankRun struct {
 	idles  []model.IdleFit
 	fitErr int
 	drains int
-	seen   int64 // samples pushed since the last commit
-	total  int64 // samples pushed in this run
+	// complete is set before the pass's final commit when the tank's
+	// history is known to be complete (scan --final, or --now past its
+	// last sample by more than the settle delay): the drain under way and
+	// those within the settle delay are judged then (model.FlushFinal).
+	complete bool
+	lastNs   int64        // time of the last sample pushed in this run
+	falls    []model.Fall // every fall decided in this run
+	seen     int64        // samples pushed since the last commit
+	total    int64        // samples pushed in this run
 	// prevEvalNs is the evaluation time of the previous pass (its
 	// checkpoint's UpdatedNs): history before it was evaluated already.
 	prevEvalNs int64
@@ -227,9 +234,21 @@ func (r *tankRun) push(s *model.Series) {
 	}
 	r.seen += int64(s.Len())
 	r.total += int64(s.Len())
+	r.lastNs = s.TimeNs[s.Len()-1]
 	r.det.AddSeries(s, r.p.detOpt)
 	r.seg.Push(s.TimeNs, s.HeadM, s.InflowM3s)
 	r.fitSegments(r.seg.Take())
+	r.takeFalls()
+}
+
+// takeFalls collects the falls the segmenter decided and lists each at
+// debug level (scan -v): its times, drop and outcome.
+func (r *tankRun) takeFalls() {
+	for _, f := range r.seg.TakeFalls() {
+		r.falls = append(r.falls, f)
+		r.log.Debug("fall", "tank", r.p.cfg.ID, "start", time.Unix(0, f.StartNs).UTC(), "end", time.Unix(0, f.EndNs).UTC(),
+			"drop_m", sig(f.DropM), "outcome", f.Outcome.String())
+	}
 }
 
 func (r *tankRun) fitSegments(segs []model.Segment) {
@@ -262,10 +281,16 @@ func (r *tankRun) fitSegments(segs []model.Segment) {
 
 // commit writes what the run has produced since the last commit, with the
 // detector state and the checkpoint, in one transaction. With final set the
-// segmenter is flushed first (end of the data available now).
+// segmenter is flushed first (end of the data available now; with complete
+// set, the end of the history).
 func (r *tankRun) commit(final bool, nowNs int64) (fits []model.Fit, err error) {
 	if final {
-		r.fitSegments(r.seg.Flush())
+		if r.complete {
+			r.fitSegments(r.seg.FlushFinal())
+		} else {
+			r.fitSegments(r.seg.Flush())
+		}
+		r.takeFalls()
 	}
 	committed := r.seg.CommittedNs()
 	if committed == minNs {

@@ -1,0 +1,107 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"strings"
+	"time"
+
+	"drainsight/ingest"
+	"drainsight/model"
+)
+
+// checkSample is how much of each file tank's history check segments to
+// see whether the settings let any fall through.
+const checkSample = 14 * 24 * time.Hour
+
+// warnRejectAll segments the first checkSample of each file tank's data
+// with the tank's settings (the history taken as complete) and writes a
+// warning for every tank where falls were seen and every one was
+// rejected: a setting (a minimum duration or drop, say) that no drain of
+// this tank can meet. Read errors are left to scan, which reports them.
+func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
+	for _, p := range plans {
+		src := p.cfg.Source
+		if src.Format == "influx" {
+			continue
+		}
+		format, err := ingest.ParseFormat(src.Format)
+		if err != nil {
+			continue
+		}
+		prec, err := ingest.ParsePrecision(src.Precision)
+		if err != nil {
+			continue
+		}
+		inflowField := ""
+		if p.cfg.Sensor.Inflow != nil {
+			inflowField = p.cfg.Sensor.Inflow.Field
+		}
+		opt := ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field,
+			TankTag: src.TankTag, InflowField: inflowField}
+		seg := model.NewSegmenter(&p.tank, p.segOpt)
+		cctx, cancel := context.WithCancel(ctx)
+		first := int64(0)
+		_, err = ingest.StreamSeries(cctx, src.Paths, format, opt, map[string]ingest.Conversion{p.cfg.ID: p.conv}, fileChunk, func(c *model.Series) {
+			if c.Tank != p.cfg.ID || c.Len() == 0 {
+				return
+			}
+			if first == 0 {
+				first = c.TimeNs[0]
+			}
+			n := c.Len()
+			for n > 0 && c.TimeNs[n-1] >= first+int64(checkSample) {
+				n--
+			}
+			var q []float64
+			if c.InflowM3s != nil {
+				q = c.InflowM3s[:n]
+			}
+			seg.Push(c.TimeNs[:n], c.HeadM[:n], q)
+			if n < c.Len() {
+				cancel()
+			}
+		})
+		cancel()
+		if err != nil && !errors.Is(err, context.Canceled) {
+			continue
+		}
+		seg.FlushFinal()
+		falls := seg.TakeFalls()
+		st := seg.Stats()
+		if st.Falls == 0 || st.Drains > 0 {
+			continue
+		}
+		var longest time.Duration
+		largest := 0.0
+		for _, f := range falls {
+			longest = max(longest, time.Duration(f.EndNs-f.StartNs))
+			largest = max(largest, f.DropM)
+		}
+		var why []string
+		for _, r := range []struct {
+			n    int
+			what string
+		}{
+			{st.RejectedShort, "too short"}, {st.RejectedSmall, "too small"}, {st.RejectedFew, "too few samples"},
+			{st.RejectedTransient, "transient only"}, {st.RejectedInflow, "inflow"},
+		} {
+			if r.n > 0 {
+				why = append(why, fmt.Sprintf("%d %s", r.n, r.what))
+			}
+		}
+		fmt.Fprintf(w, "warning: tank %s: the settings reject all %d falls in the first %.0f days of data (%s); "+
+			"the longest lasted %s and the largest fell %.3f m (detection.min_drain_duration %s, detection.min_drop %.3f m)\n",
+			p.cfg.ID, st.Falls, checkSample.Hours()/24, strings.Join(why, ", "), longest.Round(time.Second), largest,
+			minDuration(p.segOpt), p.segOpt.MinDropM)
+	}
+}
+
+func minDuration(o model.SegmentOptions) time.Duration {
+	if o.MinDuration == 0 {
+		return 2 * time.Minute
+	}
+	return o.MinDuration
+}
