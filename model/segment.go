@@ -145,24 +145,34 @@ const (
 //  2. Noise σ (unless given): robust scatter of second differences.
 //  3. Spikes: a Hampel filter on a centred window of 5 samples; a sample
 //     further than max(6 σ, 3 mm) from the window median and from both its
-//     neighbours is a spike. The
-//     median-of-5 level y is exact on any monotone curve, so it keeps the
-//     knees of a drain, and it drives all decisions below.
+//     neighbours is a spike. The median-of-5 level y is exact on any
+//     monotone curve, so it keeps the knees of a drain, and it drives all
+//     decisions below.
 //  4. Events: a fall (rise) opens when y drops (rises) more than
 //     max(6 σ, 3 mm) below (above) its maximum (minimum) over Window. The
-//     start (knee) is the last sample still within 1.2 σ of that extreme. A
-//     fall ends when y has made no new low (by σ) for the stall time
-//     clamp(max(elapsed/4, 4 σ/rate, 5 samples, 2 min), ≤ Settle), or when
-//     it rises again.
-//  5. A drain is kept when it falls at least MinDropM over at least
-//     MinDuration. The plateau after it (median reading p) decides Complete:
-//     |p| ≤ EmptyHeadM, or else the outlet law fits better with the datum at
-//     p than at zero. The transient and, when complete, the empty tail are
+//     provisional start (knee) is the last sample still within 1.5 σ of
+//     the level before it. A fall ends when y has made no new low (by σ)
+//     for the stall time clamp(max(elapsed/4, 4 σ/rate, 5 samples, 2 min),
+//     ≤ Settle), or when it rises again by the trigger level for at least
+//     6 samples and 1 min: a shorter upward step (a few sensor counts) is
+//     set aside as spikes and the fall goes on.
+//  5. Boundaries from the physics (segment_bounds.go): the head transform
+//     F(h) is linear in time during a free drain and flat in a hold, so
+//     the start is the join point of a two-phase line fit in F over the
+//     hold and the first part of the fall, a valve closure the join of
+//     the last part and the hold after it, and a drain that ran dry ends
+//     where its line in F reaches zero. Whether it ran dry (Complete) is
+//     decided from the plateau after it (median reading p): |p| ≤
+//     EmptyHeadM, or else the arrival on the plateau fits the drain
+//     running dry at p better than a valve closing at head p.
+//  6. A drain is kept when it falls at least MinDropM over at least
+//     MinDuration. The transient and, when complete, the empty tail are
 //     trimmed. Finally the mass balance K = (ΔV + ∫q dt)/∫sqrt(h) dt over
 //     the first and the second half must agree within a factor 1.6: a fall
 //     fed by unmetered inflow slows down far more than the square-root law
-//     allows and is rejected.
-//  6. Quiet stretches of at least MinIdle are idle segments (broken by
+//     allows and is rejected. Every fall's outcome is counted (Stats) and
+//     listed (TakeFalls).
+//  7. Quiet stretches of at least MinIdle are idle segments (broken by
 //     metered inflow and cut at multiples of MaxIdle).
 //
 // Results do not depend on how the samples are split into Push calls.
