@@ -123,8 +123,12 @@ const (
 	// are a sensor artefact, a refill goes on
 	riseConfirmSamples = 6
 	riseConfirmNs      = int64(60e9)
-	ratioLo            = 0.6 // accepted range of K(second half)/K(first half)
-	ratioHi            = 1.6
+	// a plateau further than this share of the drop from zero head is a
+	// valve closed, never the outlet (a datum error or drift that large is
+	// not credible)
+	dryShare = 0.2
+	ratioLo  = 0.6 // accepted range of K(second half)/K(first half)
+	ratioHi  = 1.6
 )
 
 const (
@@ -163,8 +167,8 @@ const (
 //     the last part and the hold after it, and a drain that ran dry ends
 //     where its line in F reaches zero. Whether it ran dry (Complete) is
 //     decided from the plateau after it (median reading p): |p| ≤
-//     EmptyHeadM, or else the arrival on the plateau fits the drain
-//     running dry at p better than a valve closing at head p.
+//     EmptyHeadM, or else (p within a fifth of the drop of zero and no
+//     metered inflow) the fall is straighter in F(h - p) than in F(h).
 //  6. A drain is kept when it falls at least MinDropM over at least
 //     MinDuration. The transient and, when complete, the empty tail are
 //     trimmed. Finally the mass balance K = (ΔV + ∫q dt)/∫sqrt(h) dt over

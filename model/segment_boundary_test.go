@@ -101,6 +101,7 @@ func (c boundaryCase) simulate(seed uint64) (model.Tank, model.Series, []sim.Dra
 // boundaryScore is what one case gave against the simulator's truth.
 type boundaryScore struct {
 	drains, found, extra int
+	wrongComplete        int       // ran dry, or stopped by the valve, told wrongly
 	startErr, endErr     []float64 // |segment boundary - truth| in samples
 }
 
@@ -128,6 +129,9 @@ func scoreBoundaries(tk model.Tank, s model.Series, truth []sim.DrainTruth, dt t
 		used[best] = true
 		sc.found++
 		g := dr[best]
+		if g.Complete != d.Complete {
+			sc.wrongComplete++
+		}
 		sc.startErr = append(sc.startErr, math.Abs(float64(g.RawStartNs-d.StartNs))/float64(dt))
 		sc.endErr = append(sc.endErr, math.Abs(float64(g.RawEndNs-d.EndNs))/float64(dt))
 	}
@@ -143,6 +147,7 @@ func (b *boundaryScore) add(o boundaryScore) {
 	b.drains += o.drains
 	b.found += o.found
 	b.extra += o.extra
+	b.wrongComplete += o.wrongComplete
 	b.startErr = append(b.startErr, o.startErr...)
 	b.endErr = append(b.endErr, o.endErr...)
 }
@@ -193,9 +198,9 @@ func TestSegmentBoundariesEveryShape(t *testing.T) {
 			tk, s, truth := c.simulate(uint64(100*ci + seed))
 			sc, dr := scoreBoundaries(tk, s, truth, c.dt)
 			name := fmt.Sprintf("%s/%v/%.1fmm/offset%.0fmm/seed%d", c.shape.name, c.dt, 1000*c.noiseM, 1000*c.offsetM, seed)
-			if sc.found < sc.drains || sc.extra > 0 || quantile(sc.startErr, 1) > 2 || quantile(sc.endErr, 1) > 2 {
-				t.Errorf("%s: found %d of %d drains, %d extra; start error max %.1f samples, end error max %.1f samples",
-					name, sc.found, sc.drains, sc.extra, quantile(sc.startErr, 1), quantile(sc.endErr, 1))
+			if sc.found < sc.drains || sc.extra > 0 || sc.wrongComplete > 0 || quantile(sc.startErr, 1) > 2 || quantile(sc.endErr, 1) > 2 {
+				t.Errorf("%s: found %d of %d drains, %d extra, %d with Complete wrong; start error max %.1f samples, end error max %.1f samples",
+					name, sc.found, sc.drains, sc.extra, sc.wrongComplete, quantile(sc.startErr, 1), quantile(sc.endErr, 1))
 				if testing.Verbose() {
 					logBoundaryMisses(t, dr, truth, c.dt)
 				}

@@ -315,50 +315,38 @@ func (s *Segmenter) placeEmpty(k, e, d int, datum, hMin float64) int {
 	return s.lastAtOrBefore(k, d, tau)
 }
 
-// inv is the head above the datum at which F is f.
-func (s *Segmenter) inv(f float64) float64 {
-	if s.xf == nil {
-		return 0.25 * f * f * b2f(f > 0)
-	}
-	return s.xf.Inv(f)
-}
-
-func b2f(b bool) float64 {
-	if b {
-		return 1
-	}
-	return 0
-}
-
-// ranDry tells whether the fall [k, e] onto the plateau p ((e, d]) ran
-// the tank dry with the outlet at p (the datum is unknown or the sensor
-// has drifted) rather than stopping at head p above the configured outlet
-// (a valve closed). Each hypothesis gives the level's arrival on the
-// plateau from the physics: dry, h = p + F⁻¹(line) with the line in
-// F(h - p) reaching 0; closed, h = max(F⁻¹(line), p) with the line in
-// F(h). Both lines are fitted to the last part of the fall; the one whose
-// predicted levels, plateau included, leave the smaller sum of squared
-// residuals in head wins.
-func (s *Segmenter) ranDry(k, e, d int, p, hMin float64) bool {
-	lo := s.tailStart(k, e, p)
-	hi := min(d, e+boundPreMax)
-	t0 := s.tAt(lo)
+// ranDry tells whether the fall [a, e] onto the plateau p ran the tank
+// dry with the outlet at p (the datum is unknown or the sensor has
+// drifted) rather than stopping at head p above the configured outlet (a
+// valve closed). A free drain is a straight line in F above its true
+// datum, and one above the wrong datum bends (most near the plateau), so
+// the line is fitted in F(h - p) and in F(h) to the samples more than hMin
+// above the plateau, each weighted by g² (its residuals are then heads),
+// and the straighter one wins.
+func (s *Segmenter) ranDry(a, e int, p, hMin float64) bool {
 	sse := func(datum float64) float64 {
-		a, c, ok := s.tailLine(lo, e, datum, p, hMin, t0)
-		if !ok {
-			return math.Inf(1)
-		}
-		sum := 0.0
-		for j := lo; j <= hi; j++ {
-			if s.spikeAt(j) {
+		var r run
+		cnt := 0
+		t0 := s.tAt(a)
+		for j := a; j <= e; j++ {
+			if s.spikeAt(j) || s.yAt(j)-p <= hMin {
 				continue
 			}
-			f := a + c*float64(s.tAt(j)-t0)*1e-9
-			pred := max(datum+s.inv(f), p)
-			r := s.hr[j-s.base] - pred
-			sum += r * r
+			f, g := s.fg(s.hr[j-s.base]-datum, hMin)
+			w, t := g*g, float64(s.tAt(j)-t0)*1e-9
+			r.w += w
+			r.t += w * t
+			r.tt += w * t * t
+			r.f += w * f
+			r.tf += w * t * f
+			r.ff += w * f * f
+			cnt++
 		}
-		return sum
+		if cnt < 2*boundMinSide {
+			return math.Inf(1)
+		}
+		_, _, e := r.line()
+		return e
 	}
 	return sse(p) < sse(0)
 }

@@ -480,9 +480,11 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 		for bc > a && s.yAt(bc) < p+tol {
 			bc--
 		}
-		// a fall fed by metered inflow does not arrive on its plateau the
-		// way a free drain does: only a plateau at zero head is the outlet
-		complete = math.Abs(p) <= tol || bc > a && !s.inflowIn(k, d) && s.ranDry(k, e, d, p, tol)
+		// A fall fed by metered inflow does not arrive on its plateau the
+		// way a free drain does: only a plateau at zero head is the outlet.
+		// Nor is a plateau more than dryShare of the drop away from zero:
+		// no datum error or sensor drift is that large, a valve closed.
+		complete = math.Abs(p) <= tol || bc > a && math.Abs(p) <= dryShare*drop && !s.inflowIn(k, d) && s.ranDry(a, e, p, tol)
 	}
 	datum := 0.0
 	switch {
