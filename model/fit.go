@@ -547,6 +547,7 @@ func finishLinear(fit *Fit, ht *HeadTransform, lf lineFit, tau []float64, n int,
 	s2 := lf.ss / float64(df)
 	fit.Method = "wls"
 	fit.N = lf.n
+	fit.EffectiveN = lf.n
 	fit.KM25s = -lf.b
 	fit.KSEM25s = math.Sqrt(s2 / lf.sxx)
 	tq := tQuantile975(df)
