@@ -104,11 +104,9 @@
 // over evaluations gives at most 1/FalseAlarmYears = 0.1 false sensor
 // findings per tank-year; a healthy tank's statistics change slowly, so
 // consecutive evaluations are strongly dependent and the number of distinct
-// false episodes is lower still. The feed rules (stale, gap, drift) are
-// rules on the data with no probability model and are not in the budget:
+// false episodes is lower still. The drift rule has no probability model
+// and is not in the budget. The checks:
 //
-//   - stale: no sample for StaleAfter (6 h); gap: gaps longer than GapLimit
-//     (15 min) cover more than GapShare (10 %) of the last GapWindow (24 h).
 //   - stuck: derived from the sensor's own noise and resolution. σ is the
 //     median noise of the first 8 idle periods since the sensor epoch (drain
 //     fit noise when idle periods are missing), q the smallest non-zero step
@@ -142,6 +140,22 @@
 //     moved more than DriftM (0.01 m) from the baseline, with all five on the
 //     same side; or the level rose (rate > 3 SE) in at least 4 of the last 5
 //     idle periods; or the idle fall rate ignores head (above).
+//
+// A stretch without samples longer than GapLimit (15 min) ends a flat run as
+// a changed reading does: no stuck run spans it.
+//
+// # Feed status
+//
+// Data availability is the data path's condition, not the tank's, so it is
+// never a Finding. Feed reports a tank's level feed at a time: ok, gap (no
+// sample for more than GapLimit, measured from now minus ReadLag) or silent
+// (no sample for more than SilentLimit, default 4 h), with the last sample,
+// how long it has been silent and the share of the last 24 h without
+// samples. While the feed is in a gap or silent, Evaluate returns nil: the
+// tank's findings are withheld, neither raised from too little data nor
+// cleared, and a caller keeping a lifecycle must keep them as they were.
+// FeedStatus.Notice is the one feed notice (kind feed, subtype silent) due
+// while a feed is silent; it clears as soon as samples come back.
 //
 // # Fleet view
 //

@@ -34,6 +34,11 @@ func buildPlans(cfg *config.Config) ([]*plan, error) {
 		}
 		if s := cfg.Site(ct.Site); s != nil && s.Influx != nil {
 			p.lookback = s.Influx.Overlap
+			if ct.Source.Format == "influx" {
+				// A scan reads up to now minus the settle delay: the feed's
+				// age counts from there, or every scan would see a gap.
+				p.detOpt.ReadLag = s.Influx.SettleDelay
+			}
 		}
 		plans = append(plans, p)
 	}
