@@ -17,6 +17,7 @@
 //	tanks/<tank>/idle        key be(EndNs)  -> model.IdleFit
 //	tanks/<tank>/meta        "checkpoint"   -> Checkpoint
 //	                         "detector"     -> opaque bytes from the caller
+//	                         "feed"         -> opaque bytes from the caller (the feed status)
 //	maintenance              key be(id)     -> Maintenance
 //	alerts                   tank\x00kind\x00subtype -> opaque bytes
 //	runs                     job name       -> JobRun

@@ -39,6 +39,7 @@ var (
 
 	keyCheckpoint = []byte("checkpoint")
 	keyDetector   = []byte("detector")
+	keyFeed       = []byte("feed")
 )
 
 // Store is the durable state. It is safe for concurrent use; see the package
@@ -346,6 +347,52 @@ func (s *Store) DetectorState(tank string) ([]byte, error) {
 	return out, err
 }
 
+// PutFeeds stores each tank's feed status (an opaque blob from the caller:
+// where its level feed stood at the end of a pass) in one transaction,
+// replacing the previous one. The feed status is a record of its own, kept
+// beside the detector state, not among the alert records: data availability
+// is the data path's condition, not a tank finding.
+func (s *Store) PutFeeds(feeds map[string][]byte) error {
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		for tank, v := range feeds {
+			if tank == "" {
+				return errors.New("empty tank id")
+			}
+			tb, err := tx.Bucket(bucketTanks).CreateBucketIfNotExists([]byte(tank))
+			if err != nil {
+				return err
+			}
+			meta, err := tb.CreateBucketIfNotExists(bucketMeta)
+			if err != nil {
+				return err
+			}
+			if err := meta.Put(keyFeed, v); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return fmt.Errorf("store: put feed status: %w", err)
+	}
+	return nil
+}
+
+// Feed returns a copy of the tank's feed status blob, nil when none was
+// stored.
+func (s *Store) Feed(tank string) ([]byte, error) {
+	var out []byte
+	err := s.db.View(func(tx *bolt.Tx) error {
+		if b := tankBucket(tx, tank, bucketMeta); b != nil {
+			if v := b.Get(keyFeed); v != nil {
+				out = bytes.Clone(v)
+			}
+		}
+		return nil
+	})
+	return out, err
+}
+
 // Tanks returns the ids of all tanks with committed state, sorted bytewise.
 func (s *Store) Tanks() ([]string, error) {
 	var out []string
@@ -362,7 +409,8 @@ func (s *Store) Tanks() ([]string, error) {
 }
 
 // DeleteTank removes everything stored under tanks/<tank> (fits, idle fits,
-// detector state, checkpoint). Maintenance and alert records are kept.
+// detector state, checkpoint, feed status). Maintenance and alert records
+// are kept.
 func (s *Store) DeleteTank(tank string) error {
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		err := tx.Bucket(bucketTanks).DeleteBucket([]byte(tank))

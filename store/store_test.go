@@ -505,3 +505,54 @@ func BenchmarkCommitTank(b *testing.B) {
 		})
 	}
 }
+
+// The feed status is a record of its own per tank: stored, replaced, kept
+// apart from the detector state and the alert records, survives a reopen,
+// and goes with DeleteTank.
+func TestFeeds(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "state.db")
+	s, err := Open(path, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got, err := s.Feed("A"); err != nil || got != nil {
+		t.Fatalf("no feed yet: %q, %v; want nil, nil", got, err)
+	}
+	if err := s.CommitTank("A", TankCommit{DetectorState: []byte("det")}); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.PutFeeds(map[string][]byte{"A": []byte(`{"state":"gap"}`), "B": []byte(`{"state":"ok"}`)}); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.PutFeeds(map[string][]byte{"A": []byte(`{"state":"silent"}`)}); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.PutFeeds(map[string][]byte{"": []byte("x")}); err == nil {
+		t.Error("empty tank id: got nil error")
+	}
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+	s, err = Open(path, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	for tank, want := range map[string]string{"A": `{"state":"silent"}`, "B": `{"state":"ok"}`} {
+		if got, _ := s.Feed(tank); string(got) != want {
+			t.Errorf("feed of %s = %q, want %q", tank, got, want)
+		}
+	}
+	if ds, _ := s.DetectorState("A"); string(ds) != "det" {
+		t.Errorf("detector state %q, want it untouched", ds)
+	}
+	if as, _ := s.Alerts(""); len(as) != 0 {
+		t.Errorf("alert records %v, want none (a feed status is not an alert)", as)
+	}
+	if err := s.DeleteTank("A"); err != nil {
+		t.Fatal(err)
+	}
+	if got, _ := s.Feed("A"); got != nil {
+		t.Errorf("feed after DeleteTank: %q, want nil", got)
+	}
+}
