@@ -2,7 +2,10 @@
 // planners: per tank, the outlet constant against its baseline, the drain
 // time now and at baseline, the forecast date of the maintenance threshold,
 // the active findings with their evidence, and the fleet watch list ranked by
-// evidence with the false discovery rate controlled (Benjamini-Hochberg).
+// evidence with the false discovery rate controlled (Benjamini-Hochberg),
+// and each tank's level feed (ok, in a gap or silent, and the data gaps of
+// the week) apart from the findings: data availability is the data path's
+// condition, never a tank finding.
 //
 // It renders Markdown (for mail and tickets) and a self-contained HTML page
 // with one small inline SVG trend per tank. Rendering is pure: the caller
@@ -14,6 +17,7 @@ import (
 	"html/template"
 	"io"
 	"math"
+	"slices"
 	"strings"
 	"time"
 
@@ -30,7 +34,9 @@ type Tank struct {
 	// Fits are the tank's drains in the report's trend window, oldest first;
 	// only grades A and B with a finite K are shown.
 	Fits []model.Fit
-	// Findings are the tank's active findings (new or ongoing).
+	// Findings are the tank's active findings (new or ongoing). A feed
+	// notice among them (kind detect.KindFeed) is shown with the feed, not
+	// as a finding.
 	Findings []alert.Record
 	// Forecast is the trend forecast of the first outlet finding, or the
 	// detector's own when none is active; nil when there is no trend.
@@ -39,6 +45,10 @@ type Tank struct {
 	Rank detect.FleetRank
 	// LastSample is the newest level sample seen.
 	LastSample time.Time
+	// Feed is the tank's level feed at the last scan (State "" when none
+	// is known); Gaps are the data gaps that overlap the reporting week.
+	Feed detect.FeedStatus
+	Gaps []detect.Gap
 }
 
 // Input is everything the report shows.
@@ -60,13 +70,30 @@ type row struct {
 	DrainNow, DrainBase         string
 	ForecastText                string
 	Trend                       template.HTML
+	// The feed: its state in words, the gaps of the week, the longest,
+	// and the share of the week without samples.
+	FeedText, LastSampleText string
+	GapsInPeriod             int
+	LongestGap, MissingText  string
+	FeedNotice               bool
 }
 
 func summarize(in Input) []row {
 	rows := make([]row, 0, len(in.Tanks))
 	for _, t := range in.Tanks {
 		t.Fits = usable(t.Fits)
-		r := row{Tank: t, ChangePct: math.NaN()}
+		var findings []alert.Record
+		notice := false
+		for _, rec := range t.Findings {
+			if rec.Finding.Kind == detect.KindFeed {
+				notice = true
+				continue
+			}
+			findings = append(findings, rec)
+		}
+		t.Findings = findings
+		r := row{Tank: t, ChangePct: math.NaN(), FeedNotice: notice}
+		r.feed(in)
 		for _, f := range t.Fits {
 			if f.EndNs >= in.PeriodStart.UnixNano() {
 				r.DrainsInPeriod++
@@ -82,6 +109,8 @@ func summarize(in Input) []row {
 		switch {
 		case len(t.Findings) > 0:
 			r.Status = "ACTION"
+		case t.Feed.State == detect.FeedSilent:
+			r.Status = "feed silent"
 		case t.Rank.Watch:
 			r.Status = "watch"
 		case t.BaselineKM25s == 0:
@@ -110,6 +139,49 @@ func summarize(in Input) []row {
 		rows = append(rows, r)
 	}
 	return rows
+}
+
+// feed fills the row's feed columns: the state at the last scan, the gaps
+// that overlap the week [PeriodStart, Now] (the gap in progress at the last
+// scan included) and the share of the week they cover.
+func (r *row) feed(in Input) {
+	f := r.Feed
+	r.FeedText, r.LastSampleText, r.LongestGap, r.MissingText = "-", "-", "-", "-"
+	if !f.LastSample.IsZero() {
+		r.LastSampleText = f.LastSample.UTC().Format("2006-01-02 15:04")
+	}
+	switch f.State {
+	case "":
+		return
+	case detect.FeedGap, detect.FeedSilent:
+		r.FeedText = fmt.Sprintf("%s for %.1f h", f.State, f.SilentForS/3600)
+		if r.FeedNotice {
+			r.FeedText += " (notice sent)"
+		}
+	default:
+		r.FeedText = string(f.State)
+	}
+	lo, hi := in.PeriodStart.UnixNano(), in.Now.UnixNano()
+	gaps := slices.Clone(r.Gaps)
+	if f.State == detect.FeedGap || f.State == detect.FeedSilent {
+		gaps = append(gaps, detect.Gap{StartNs: f.SilentSince.UnixNano(), EndNs: f.At.UnixNano()})
+	}
+	var lost, longest int64
+	for _, g := range gaps {
+		a, b := max(g.StartNs, lo), min(g.EndNs, hi)
+		if b <= a {
+			continue
+		}
+		r.GapsInPeriod++
+		lost += b - a
+		longest = max(longest, g.EndNs-g.StartNs)
+	}
+	if longest > 0 {
+		r.LongestGap = fmt.Sprintf("%.1f h", time.Duration(longest).Hours())
+	}
+	if hi > lo {
+		r.MissingText = fmt.Sprintf("%.1f %%", 100*float64(lost)/float64(hi-lo))
+	}
 }
 
 // usable keeps the fits that detection uses: grade A or B, finite K > 0.
@@ -200,9 +272,20 @@ func Markdown(w io.Writer, in Input) error {
 	b.WriteString("\nRestriction: the outlet passes less than at baseline (fouling, scaling, a blockage or a valve not fully open). " +
 		"Excess outflow: it passes more (erosion, a leak downstream). Tank leak: the level falls while the outlet is shut. " +
 		"Sensor fault: the level reading itself is suspect; outlet findings are withheld while it lasts.\n")
+	b.WriteString("\n## Data feeds\n\n" + feedNote + "\n\n")
+	b.WriteString("| tank | feed at the last scan | last sample | gaps this week | longest gap | without samples this week |\n")
+	b.WriteString("|---|---|---|---|---|---|\n")
+	for _, r := range rows {
+		fmt.Fprintf(&b, "| %s | %s | %s | %d | %s | %s |\n", r.ID, r.FeedText, r.LastSampleText, r.GapsInPeriod, r.LongestGap, r.MissingText)
+	}
 	_, err := io.WriteString(w, b.String())
 	return err
 }
+
+// feedNote says what the feed table is.
+const feedNote = "A data gap (15 min or more without a sample) is the data path's condition, not the tank's, and never a finding: " +
+	"while a tank's data are missing its findings are withheld, neither raised nor cleared. " +
+	"A feed silent longer than its limit (detection.feed_silent_limit, default 4 h) gets one notice, and one when it is back."
 
 // qText shows a tank's q-value; "-" when the tank was not ranked.
 func qText(r detect.FleetRank) string {
@@ -280,14 +363,20 @@ the dashed line is the tank's baseline, the dotted one the maintenance threshold
 <h2>Findings</h2>
 <ul>{{range .Rows}}{{$id := .ID}}{{range .Findings}}<li><b>{{$id}}: {{.Finding.Kind}}{{if .Finding.Subtype}} ({{.Finding.Subtype}}){{end}}</b>, {{.Status}} since {{day .FirstSeen}}. {{.Finding.Evidence}}</li>
 {{end}}{{end}}</ul>
+<h2>Data feeds</h2>
+<p>{{.FeedNote}}</p>
+<table><tr><th>tank</th><th>feed at the last scan</th><th>last sample</th><th>gaps this week</th><th>longest gap</th><th>without samples this week</th></tr>
+{{range .Rows}}<tr><td>{{.ID}}</td><td>{{.FeedText}}</td><td>{{.LastSampleText}}</td><td>{{.GapsInPeriod}}</td><td>{{.LongestGap}}</td><td>{{.MissingText}}</td></tr>
+{{end}}</table>
 </body></html>
 `))
 
 // HTML writes the report as one self-contained HTML page.
 func HTML(w io.Writer, in Input) error {
 	return page.Execute(w, struct {
-		In      Input
-		Rows    []row
-		Caution string
-	}{in, summarize(in), alert.Caution})
+		In       Input
+		Rows     []row
+		Caution  string
+		FeedNote string
+	}{in, summarize(in), alert.Caution, feedNote})
 }

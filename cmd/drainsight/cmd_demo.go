@@ -28,9 +28,10 @@ beside healthy tanks.
 
 The demo writes its data files (CSV and line protocol) and its config
 (demo.yaml) into DIR, scans them like any plant, writes events.jsonl,
-findings.jsonl and the outlet-health report, and prints what it found next to
-what was injected. With --influx-url it first loads the data into that
-InfluxDB and scans them from there.`
+findings.jsonl, feeds.jsonl and the outlet-health report, and prints what it
+found next to what was injected (the detention basin's data gap shows as its
+feed's status, never as a finding). With --influx-url it first loads the
+data into that InfluxDB and scans them from there.`
 
 // demoStart is the first day of the demo plant's data.
 var demoStart = time.Date(2026, 1, 5, 0, 0, 0, 0, time.UTC)
@@ -76,7 +77,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 	if err := os.MkdirAll(dataDir, 0o755); err != nil {
 		return err
 	}
-	for _, f := range []string{"state.db", "events.jsonl", "findings.jsonl"} {
+	for _, f := range []string{"state.db", "events.jsonl", "findings.jsonl", "feeds.jsonl"} {
 		if err := os.Remove(filepath.Join(*outDir, f)); err != nil && !os.IsNotExist(err) {
 			return err
 		}

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"cmp"
 	"context"
+	"encoding/json"
 	"fmt"
 	"log/slog"
 	"os"
@@ -21,7 +22,9 @@ import (
 const reportAbout = `Writes the outlet-health report from the stored state (no data are read):
 DIR/report.md and DIR/report.html, with each tank's outlet constant against
 its baseline, drain times, the forecast date of the maintenance threshold,
-the active findings with their evidence and the fleet watch list.`
+the active findings with their evidence, the fleet watch list, and each
+tank's level feed at the last scan with the data gaps of the week (the data
+path's condition, never a finding).`
 
 func runReport(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "report", "report --config FILE [--out DIR] [--now TIME]", reportAbout)
@@ -136,6 +139,16 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 		}
 		if det.Sensor.LastSampleNs > 0 {
 			t.LastSample = time.Unix(0, det.Sensor.LastSampleNs).UTC()
+		}
+		t.Gaps = det.GapsBetween(in.PeriodStart, now)
+		if blob, err := st.Feed(id); err != nil {
+			return in, err
+		} else if len(blob) > 0 {
+			var fr feedRecord
+			if err := json.Unmarshal(blob, &fr); err != nil {
+				return in, fmt.Errorf("tank %s: stored feed status: %w", id, err)
+			}
+			t.Feed = fr.FeedStatus
 		}
 		recs, err := st.Alerts(id)
 		if err != nil {

@@ -27,10 +27,15 @@ report findings. The statistics are evaluated at every UTC midnight of the
 history read (that earlier passes did not evaluate) and at the end, so faults
 that came and went between passes are reported with their dates.
 
-Writes DIR/events.jsonl (the drains fitted in this pass) and
+Writes DIR/events.jsonl (the drains fitted in this pass),
 DIR/findings.jsonl (every transition of the pass and the state at the end:
-new, ongoing or cleared), notifies the new and cleared findings of the last
-24 h, and prints a short summary: how many falls were seen, fitted as
+new, ongoing or cleared) and DIR/feeds.jsonl (each tank's level feed: ok,
+in a gap or silent, and the data gaps of the pass; a data gap is never a
+finding, and a tank's findings are withheld, neither raised nor cleared,
+while its data are missing), notifies the new and cleared findings of the
+last 24 h (and one feed notice when a feed has been silent longer than
+detection.feed_silent_limit, one when it is back), and prints a short
+summary: how many falls were seen, fitted as
 drains, rejected (too short, too small, too few samples, transient only,
 inflow) and pending (under way, or ending within the settle delay of the
 tank's last sample: left for the next scan); -v lists each fall.
@@ -43,7 +48,7 @@ for more, run backfill (with --reanalyse once a tank has been scanned).
 
 Running scan again over the same data fits nothing twice and repeats no alert.
 Exit status: 0 done, 1 error (a tank failed), 2 bad usage, 3 with
---fail-on-findings when a finding is active.`
+--fail-on-findings when a tank finding is active (a feed notice is not one).`
 
 // runScan implements "drainsight scan".
 func runScan(ctx context.Context, e *env, args []string) error {
@@ -52,7 +57,7 @@ func runScan(ctx context.Context, e *env, args []string) error {
 	outDir := fs.String("out", "", "output directory (default: outputs.directory of the config)")
 	statePath := fs.String("state", "", "state file (default: outputs.state_file of the config)")
 	nowFlag := fs.String("now", "", "evaluation time, RFC 3339 (default: newest sample for files, the clock for InfluxDB)")
-	failOn := fs.Bool("fail-on-findings", false, "exit with status 3 when a finding is active")
+	failOn := fs.Bool("fail-on-findings", false, "exit with status 3 when a tank finding is active (a feed notice is not one)")
 	final := fs.Bool("final", false, "the file histories are complete: fit a drain that runs into the end of a tank's data as a partial drain and\nhold back no drain for the settle delay (automatic for a tank whose last sample is more than the settle\ndelay before --now)")
 	verbose := fs.Bool("v", false, "debug logging; lists every fall with its times and what became of it")
 	if err := parseFlags(e, fs, args); err != nil {
@@ -79,7 +84,8 @@ func runScan(ctx context.Context, e *env, args []string) error {
 	}
 	if *failOn {
 		for _, ev := range res.events {
-			if ev.At.Equal(res.now) && ev.Status != alert.StatusCleared {
+			// A feed notice is the data path's condition, not a finding.
+			if ev.At.Equal(res.now) && ev.Status != alert.StatusCleared && ev.Finding.Kind != detect.KindFeed {
 				return errFindings
 			}
 		}
@@ -248,7 +254,8 @@ func toFindingRecord(ev alert.Event) findingRecord {
 	return r
 }
 
-// writeOutputs writes events.jsonl and findings.jsonl atomically (a
+// writeOutputs writes events.jsonl, findings.jsonl and feeds.jsonl
+// atomically (a
 // temporary file renamed into place), so a reader never sees half a file.
 func writeOutputs(dir string, res *scanResult) error {
 	fits := res.fits()
@@ -266,7 +273,16 @@ func writeOutputs(dir string, res *scanResult) error {
 	for _, ev := range res.events {
 		fr = append(fr, toFindingRecord(ev))
 	}
-	return writeJSONL(filepath.Join(dir, "findings.jsonl"), fr)
+	if err := writeJSONL(filepath.Join(dir, "findings.jsonl"), fr); err != nil {
+		return err
+	}
+	var feeds []any
+	for i := range res.outcomes {
+		if r, ok := res.outcomes[i].feedRecord(); ok {
+			feeds = append(feeds, r)
+		}
+	}
+	return writeJSONL(filepath.Join(dir, "feeds.jsonl"), feeds)
 }
 
 func writeJSONL(path string, recs []any) error {
@@ -356,7 +372,7 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 		fmt.Fprintln(w)
 		fmt.Fprintln(w, alert.Caution)
 	}
-	fmt.Fprintf(w, "Outputs: %s, %s\n", filepath.Join(outDir, "events.jsonl"), filepath.Join(outDir, "findings.jsonl"))
+	fmt.Fprintf(w, "Outputs: %s, %s, %s\n", filepath.Join(outDir, "events.jsonl"), filepath.Join(outDir, "findings.jsonl"), filepath.Join(outDir, "feeds.jsonl"))
 }
 
 // printFalls writes what became of the falls of the pass: how many were

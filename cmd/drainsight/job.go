@@ -3,6 +3,7 @@ package main
 import (
 	"cmp"
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -127,6 +128,54 @@ type tankOutcome struct {
 	seg       model.SegmentStats
 	falls     []model.Fall
 	fitFailed int
+}
+
+// feedRecord is one tank's feed at the end of a pass: one line of
+// feeds.jsonl and the feed status kept in the state file (schema in the
+// README). It is the data path's condition, never a tank finding.
+type feedRecord struct {
+	detect.FeedStatus
+	// GapsInPass and LongestGapInPassS: the data gaps that overlap the pass
+	// (since the tank's previous evaluation) and the longest of them, s.
+	GapsInPass        int     `json:"gaps_in_pass"`
+	LongestGapInPassS float64 `json:"longest_gap_in_pass_s"`
+}
+
+// feedRecord returns the tank's feed record; ok is false for a tank that
+// failed or was not evaluated.
+func (o *tankOutcome) feedRecord() (feedRecord, bool) {
+	fs, ok := o.feed()
+	if !ok || o.err != nil {
+		return feedRecord{}, false
+	}
+	fs.SilentForS, fs.MissingShare24h, fs.SilentLimitS = sig(fs.SilentForS), sig(fs.MissingShare24h), sig(fs.SilentLimitS)
+	r := feedRecord{FeedStatus: fs, GapsInPass: len(o.gaps)}
+	for _, g := range o.gaps {
+		r.LongestGapInPassS = max(r.LongestGapInPassS, time.Duration(g.EndNs-g.StartNs).Seconds())
+	}
+	r.LongestGapInPassS = sig(r.LongestGapInPassS)
+	return r, true
+}
+
+// putFeeds stores each evaluated tank's feed record in the state file, for
+// the report and status pages.
+func (j *job) putFeeds(outcomes []tankOutcome) error {
+	feeds := map[string][]byte{}
+	for i := range outcomes {
+		r, ok := outcomes[i].feedRecord()
+		if !ok {
+			continue
+		}
+		b, err := json.Marshal(r)
+		if err != nil {
+			return fmt.Errorf("tank %s: feed status: %w", outcomes[i].tank, err)
+		}
+		feeds[outcomes[i].tank] = b
+	}
+	if len(feeds) == 0 {
+		return nil
+	}
+	return j.st.PutFeeds(feeds)
 }
 
 // feed returns the tank's feed status at the last evaluation.
@@ -271,6 +320,9 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	// committed and evaluated is reported.
 	evs, err := j.updateAlerts(now, outcomes)
 	res.events = evs
+	if ferr := j.putFeeds(outcomes); ferr != nil {
+		err = errors.Join(err, ferr)
+	}
 	if cerr := ctx.Err(); cerr != nil {
 		return res, cerr
 	}
