@@ -98,8 +98,9 @@ type StudyRow struct {
 	FalsePerTankYear  float64
 	TankYears         float64
 	// Healthy row: routine data gaps simulated per tank-year and the feed
-	// notices they gave (a feed silent past Options.SilentLimit); neither
-	// is a tank finding.
+	// notices they gave (a feed turning silent past Options.SilentLimit at
+	// a 15 min scan; each is followed by one notice that it is back);
+	// neither is a tank finding.
 	GapsPerTankYear        float64
 	FeedNoticesPerTankYear float64
 	FalseBeforeOnset       int // false findings before the onset in fault runs
@@ -114,8 +115,9 @@ type StudyRow struct {
 // full size after RampDays (gradual restriction), or a tank leak (drains see
 // K rise by the magnitude and idle periods a leak constant of that size).
 // The detector is evaluated once a day; after a false finding the charts are
-// restarted, as after an inspection that found nothing. Deterministic for a
-// given Seed.
+// restarted, as after an inspection that found nothing. The healthy tanks
+// also have a raw level feed with routine data gaps (see studyHealthy),
+// looked at every 15 min for feed notices. Deterministic for a given Seed.
 func Study(opt StudyOptions) []StudyRow {
 	opt = opt.withDefaults()
 	var rows []StudyRow
@@ -302,6 +304,18 @@ func classifiedRight(f Finding, fault string) bool {
 	return false
 }
 
+// studyScanEvery is how often the healthy row looks at the feed: the
+// default scan schedule (outputs.scan_schedule "*/15 * * * *"), which is
+// when a real feed notice would go out.
+const studyScanEvery = int64(15 * time.Minute)
+
+// studyHealthy runs the healthy tanks with a raw feed broken by routine data
+// gaps (routineFeed). The feed is looked at every studyScanEvery: a feed
+// notice is counted when it turns silent (each is followed by one "back"
+// notice when samples return). Tank findings are evaluated once a day and
+// also at the first scan after each gap ends, when findings withheld during
+// the gap would surface; a tank finding is never raised while the feed is
+// in a gap (Evaluate withholds).
 func studyHealthy(opt StudyOptions) StudyRow {
 	row := StudyRow{Fault: FaultHealthy, Tanks: opt.HealthyTanks}
 	dopt := opt.Detector.withDefaults()
@@ -314,27 +328,32 @@ func studyHealthy(opt StudyOptions) StudyRow {
 		st := newSimTank(opt.Seed, 999_999, uint64(i))
 		s := NewState(fmt.Sprintf("healthy-%d", i))
 		end := studyStart + int64(opt.HealthyYears*365.25*nsPerDay)
-		nextEval := studyStart + int64(nsPerDay)
+		nextScan := studyStart + studyScanEvery
 		feed := newRoutineFeed(opt.Seed, uint64(i))
-		silent := false
+		silent, withheld := false, false
+		evaluate := func(now time.Time) {
+			if len(s.Evaluate(now, dopt)) > 0 {
+				falseN++
+				s.restartCharts()
+			}
+		}
 		for st.tNs < end {
 			idle, f := st.step(opt, one, zero)
 			s.AddIdle(idle, dopt)
 			s.AddFit(f, dopt)
-			if st.tNs < nextEval {
-				continue
-			}
-			now := nsTime(nextEval)
-			s.AddSeries(feed.until(nextEval), dopt)
-			nextEval += int64(nsPerDay)
-			fs := s.Feed(now, dopt)
-			if fs.State == FeedSilent && !silent {
-				notices++
-			}
-			silent = fs.State == FeedSilent
-			if len(s.Evaluate(now, dopt)) > 0 {
-				falseN++
-				s.restartCharts()
+			for ; nextScan <= st.tNs && nextScan <= end; nextScan += studyScanEvery {
+				now := nsTime(nextScan)
+				s.AddSeries(feed.until(nextScan), dopt)
+				fs := s.Feed(now, dopt)
+				if fs.State == FeedSilent && !silent {
+					notices++
+				}
+				silent = fs.State == FeedSilent
+				daily := (nextScan-studyStart)%int64(nsPerDay) == 0
+				if daily || withheld && !fs.Withholds() {
+					evaluate(now)
+				}
+				withheld = fs.Withholds()
 			}
 		}
 		gaps += feed.gaps
@@ -348,9 +367,12 @@ func studyHealthy(opt StudyOptions) StudyRow {
 }
 
 // routineFeed is the raw level feed of a healthy study tank: a sample every
-// 5 min with a reading that varies (so no stuck run forms), broken by
-// routine data gaps, one per 12 days on average (exponential spacing),
-// lasting 10 min to 8 h (log-uniform): logger restarts and network outages.
+// 5 min of a steady level with 2 mm noise read in 1 mm counts (so readings
+// repeat now and then, as real ones do, across gaps too), broken by routine
+// data gaps, one per 12 days on average (exponential spacing), lasting 10 min
+// to 8 h (log-uniform): logger restarts and network outages. The rate and
+// range are the project's requirement (issue 9); the shapes of the
+// distributions are common practice for such outages.
 type routineFeed struct {
 	rng    *rand.Rand
 	tNs    int64
@@ -359,7 +381,10 @@ type routineFeed struct {
 	gaps   int
 }
 
-const routineStepNs = int64(5 * time.Minute)
+const (
+	routineStepNs  = int64(5 * time.Minute)
+	routineCountsM = 0.001
+)
 
 func newRoutineFeed(seed, i uint64) *routineFeed {
 	f := &routineFeed{rng: rand.New(rand.NewPCG(seed^0x9e3779b9, 7_000_000+i)), tNs: studyStart}
@@ -384,7 +409,7 @@ func (f *routineFeed) until(tNs int64) *model.Series {
 			f.gaps++
 			f.nextGap()
 		}
-		ser.Append(f.tNs, 1+0.002*f.rng.NormFloat64())
+		ser.Append(f.tNs, routineCountsM*math.Round((1+0.002*f.rng.NormFloat64())/routineCountsM))
 	}
 	return ser
 }
