@@ -227,7 +227,12 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		if t.out.err == nil && t.run != nil {
 			t.out.evals = append(t.run.evals, evaluate(t.run.det, now, t.p.detOpt))
 			t.out.gaps = t.run.det.GapsBetween(time.Unix(0, t.run.prevEvalNs), now)
-			j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, t.out.findings())
+			if ev := t.out.evals[len(t.out.evals)-1]; !ev.withheld {
+				// While the data are missing the findings are withheld:
+				// what was written before stands, and a feed notice is the
+				// data path's condition, not an outlet finding.
+				j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, ev.findings)
+			}
 		}
 		outs = append(outs, t.out)
 	}

@@ -223,13 +223,6 @@ func nextEval(tNs int64) int64 {
 	return (tNs/int64(evalEvery) + 1) * int64(evalEvery)
 }
 
-// findings returns the tank's findings at the last evaluation.
-func (o *tankOutcome) findings() []detect.Finding {
-	if len(o.evals) == 0 {
-		return nil
-	}
-	return o.evals[len(o.evals)-1].findings
-}
 
 // scanResult is what one pass of the job gave.
 type scanResult struct {
