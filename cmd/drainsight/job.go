@@ -223,7 +223,6 @@ func nextEval(tNs int64) int64 {
 	return (tNs/int64(evalEvery) + 1) * int64(evalEvery)
 }
 
-
 // scanResult is what one pass of the job gave.
 type scanResult struct {
 	now      time.Time
