@@ -133,6 +133,27 @@ func TestDemoEndToEnd(t *testing.T) {
 			t.Errorf("KV-DTB-6: its data gap was reported as %s", k)
 		}
 	}
+	// It is shown as feed status instead: in the summary and in
+	// feeds.jsonl (the simulator's gap is 8 h; the stretch between the
+	// samples around it is a sample interval longer).
+	if want := "Data gaps in this pass: KV-DTB-6 1 (longest 8.0 h)."; !strings.Contains(out, want) {
+		t.Errorf("demo summary lacks %q:\n%s", want, out)
+	}
+	gapFeeds := 0
+	for _, r := range readJSONL(t, filepath.Join(dir, "feeds.jsonl")) {
+		if r["state"] != "ok" {
+			t.Errorf("feed of %v at the end: %v, want ok", r["tank"], r["state"])
+		}
+		if n, _ := r["gaps_in_pass"].(float64); n > 0 {
+			gapFeeds++
+			if s, _ := r["longest_gap_in_pass_s"].(float64); r["tank"] != "KV-DTB-6" || n != 1 || s < 8*3600 || s > 8*3600+120 {
+				t.Errorf("feeds.jsonl: %v has %v gaps (longest %v s), want only KV-DTB-6 with one of 8 h", r["tank"], n, s)
+			}
+		}
+	}
+	if gapFeeds != 1 {
+		t.Errorf("feeds.jsonl: %d tanks with gaps, want 1 (KV-DTB-6)", gapFeeds)
+	}
 	for _, healthy := range []string{"KV-BWR-1", "KV-FWT-7"} {
 		if got := kinds[healthy]; len(got) > 0 {
 			t.Errorf("healthy tank %s has findings %v", healthy, got)
