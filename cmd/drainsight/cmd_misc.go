@@ -216,7 +216,8 @@ const studyAbout = `Runs one of the measured studies and prints its table (Markd
              noise, sensor lag, counts, Cd varying with the Reynolds number):
              coverage of the 95 % intervals and the share graded usable
   detection  simulated histories of many tanks per fault kind and size:
-             detection rate, delay, classification, false findings per tank-year`
+             detection rate, delay, classification; healthy tanks with routine
+             data gaps: false tank findings and feed notices per tank-year`
 
 func runStudy(ctx context.Context, e *env, args []string) error {
 	if len(args) == 0 || strings.HasPrefix(args[0], "-") {
