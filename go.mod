@@ -3,15 +3,18 @@ module drainsight
 go 1.26
 
 require (
+	github.com/influxdata/influxdb-client-go/v2 v2.14.0
+	github.com/robfig/cron/v3 v3.0.1
+	go.etcd.io/bbolt v1.5.0
+	go.yaml.in/yaml/v3 v3.0.6
+	gonum.org/v1/gonum v0.17.0
+)
+
+require (
 	github.com/apapsch/go-jsonmerge/v2 v2.0.0 // indirect
 	github.com/google/uuid v1.3.1 // indirect
-	github.com/influxdata/influxdb-client-go/v2 v2.14.0 // indirect
 	github.com/influxdata/line-protocol v0.0.0-20200327222509-2487e7298839 // indirect
 	github.com/oapi-codegen/runtime v1.0.0 // indirect
-	github.com/robfig/cron/v3 v3.0.1 // indirect
-	go.etcd.io/bbolt v1.5.0 // indirect
-	go.yaml.in/yaml/v3 v3.0.6 // indirect
 	golang.org/x/net v0.23.0 // indirect
 	golang.org/x/sys v0.45.0 // indirect
-	gonum.org/v1/gonum v0.17.0 // indirect
 )

@@ -12,7 +12,7 @@ import (
 )
 
 // The data files are NIST ITL Statistical Reference Datasets, copied byte for
-// byte (see /work/shared/refdata/nist-strd/README.md for origin and sha256);
+// byte (see ../shared/refdata/nist-strd/README.md for origin and sha256);
 // the certified values are read from each file's own header.
 
 func loadStRD(t testing.TB, name string) *strdSet {
