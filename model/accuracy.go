@@ -61,6 +61,10 @@ type AccuracyRow struct {
 	Coverage     float64
 	Disturbance  string  // RealisticStudy rows: what departs from white noise
 	Usable       float64 // RealisticStudy rows: share of fitted drains graded A or B
+	// RealisticStudy rows: share of fitted drains InflowSuspected takes for
+	// falls with inflow, checked against the row's own median exponent and
+	// ln K as a baseline of this outlet would give them.
+	InflowRejected float64
 }
 
 // accuracyTank returns the study tank for a shape name, its true K and the

@@ -270,6 +270,7 @@ func RealisticStudy(opt RealisticOptions) []AccuracyRow {
 					TrueKM25s: truth, CRBM25s: math.NaN(), Ratio: math.NaN()}
 				var se2, sb float64
 				covered, usable := 0, 0
+				fits := make([]Fit, 0, opt.Replicates)
 				for range opt.Replicates {
 					disturb(&seg, clean, dt, sigma, dist, rng)
 					seg.Tank, seg.Kind = shape, Drain
@@ -283,6 +284,7 @@ func RealisticStudy(opt RealisticOptions) []AccuracyRow {
 						continue
 					}
 					row.Fitted++
+					fits = append(fits, f)
 					e := f.KM25s - truth
 					se2 += e * e
 					sb += e
@@ -299,6 +301,7 @@ func RealisticStudy(opt RealisticOptions) []AccuracyRow {
 					row.RelBias = sb / float64(row.Fitted) / truth
 					row.Coverage = float64(covered) / float64(row.Fitted)
 					row.Usable = float64(usable) / float64(row.Fitted)
+					row.InflowRejected = inflowRejected(fits)
 				}
 				rows = append(rows, row)
 			}
@@ -307,24 +310,49 @@ func RealisticStudy(opt RealisticOptions) []AccuracyRow {
 	return rows
 }
 
+// inflowRejected is the share of fits that InflowSuspected rejects with a
+// baseline made of the same fits: their median exponent and median ln K.
+func inflowRejected(fits []Fit) float64 {
+	ns, lk := make([]float64, 0, len(fits)), make([]float64, 0, len(fits))
+	for _, f := range fits {
+		if !math.IsNaN(f.Exponent) {
+			ns = append(ns, f.Exponent)
+		}
+		lk = append(lk, math.Log(f.KM25s))
+	}
+	if len(ns) < 3 {
+		return 0
+	}
+	c := ExponentCheckBaseline
+	c.RefExponent, c.RefLnK = median(ns), median(lk)
+	n := 0
+	for i := range fits {
+		if _, in := InflowSuspected(&fits[i], c); in {
+			n++
+		}
+	}
+	return float64(n) / float64(len(fits))
+}
+
 // FormatRealisticTable renders the rows of RealisticStudy as a markdown
 // table followed by the coverage range and the usable share.
 func FormatRealisticTable(rows []AccuracyRow) string {
 	var b strings.Builder
-	b.WriteString("| disturbance | shape | drain | noise mm | dt s | N | fitted | RMSE/K % | bias % | coverage % | usable % |\n")
-	b.WriteString("|---|---|---|---:|---:|---:|---:|---:|---:|---:|---:|\n")
+	b.WriteString("| disturbance | shape | drain | noise mm | dt s | N | fitted | RMSE/K % | bias % | coverage % | usable % | taken for inflow % |\n")
+	b.WriteString("|---|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|\n")
 	lo, hi := math.Inf(1), math.Inf(-1)
-	var fitted, usable float64
+	var fitted, usable, inflow float64
 	for _, r := range rows {
-		fmt.Fprintf(&b, "| %s | %s | %s | %.1f | %g | %d | %d | %.3f | %+.3f | %.1f | %.1f |\n",
+		fmt.Fprintf(&b, "| %s | %s | %s | %.1f | %g | %d | %d | %.3f | %+.3f | %.1f | %.1f | %.1f |\n",
 			r.Disturbance, r.Shape, r.Drain, r.NoiseM*1e3, r.SampleS, r.Samples, r.Fitted,
-			100*r.RMSEM25s/r.TrueKM25s, 100*r.RelBias, 100*r.Coverage, 100*r.Usable)
+			100*r.RMSEM25s/r.TrueKM25s, 100*r.RelBias, 100*r.Coverage, 100*r.Usable, 100*r.InflowRejected)
+		inflow += r.InflowRejected * float64(r.Fitted)
 		lo, hi = math.Min(lo, r.Coverage), math.Max(hi, r.Coverage)
 		fitted += float64(r.Fitted)
 		usable += r.Usable * float64(r.Fitted)
 	}
 	if len(rows) > 0 {
-		fmt.Fprintf(&b, "\ncoverage %.1f-%.1f %% by row; usable (A or B) %.1f %% of fitted drains\n", 100*lo, 100*hi, 100*usable/fitted)
+		fmt.Fprintf(&b, "\ncoverage %.1f-%.1f %% by row; usable (A or B) %.1f %% of fitted drains; taken for inflow %.2f %%\n", 100*lo, 100*hi, 100*usable/fitted, 100*inflow/fitted)
 	}
 	return b.String()
 }

@@ -175,7 +175,9 @@ const (
 //     the first and the second half must agree within a factor 1.6: a fall
 //     fed by unmetered inflow slows down far more than the square-root law
 //     allows and is rejected. Every fall's outcome is counted (Stats) and
-//     listed (TakeFalls).
+//     listed (TakeFalls). A drain that a later check on its fit rejects
+//     (InflowSuspected, against the tank's own drains) is moved to that
+//     outcome with Reject.
 //  7. Quiet stretches of at least MinIdle are idle segments (broken by
 //     metered inflow and cut at multiples of MaxIdle).
 //
@@ -525,12 +527,8 @@ func (s *Segmenter) TakeFalls() []Fall {
 	return out
 }
 
-// rejectFall records a fall [k, e] that is not a drain.
-func (s *Segmenter) rejectFall(k, e int, dropM float64, why FallOutcome) {
-	t0 := s.tAt(k)
-	if t0 < s.emitFrom {
-		return
-	}
+// countReject counts a fall rejected for why.
+func (s *Segmenter) countReject(why FallOutcome) {
 	switch why {
 	case FallTooShort:
 		s.stats.RejectedShort++
@@ -545,6 +543,15 @@ func (s *Segmenter) rejectFall(k, e int, dropM float64, why FallOutcome) {
 	case FallPending:
 		s.stats.Pending++
 	}
+}
+
+// rejectFall records a fall [k, e] that is not a drain.
+func (s *Segmenter) rejectFall(k, e int, dropM float64, why FallOutcome) {
+	t0 := s.tAt(k)
+	if t0 < s.emitFrom {
+		return
+	}
+	s.countReject(why)
 	s.stats.Falls++
 	s.falls = append(s.falls, Fall{StartNs: t0, EndNs: s.tAt(e), DropM: dropM, Outcome: why})
 }

@@ -264,6 +264,14 @@ func (r *tankRun) fitSegments(segs []model.Segment) {
 				continue
 			}
 			f.Tank = r.p.cfg.ID
+			if why, in := model.InflowSuspected(&f, r.det.ExponentCheck()); in {
+				// Not a drain of the outlet alone: its fall is counted and
+				// listed as rejected for inflow, and nothing is written.
+				r.seg.Reject(sg, model.FallInflow)
+				r.drains--
+				r.log.Debug("drain rejected", "tank", r.p.cfg.ID, "start", sg.Start(), "reason", why)
+				continue
+			}
 			r.fresh = append(r.fresh, f)
 			r.det.AddFit(f, r.p.detOpt)
 		case model.Idle:
