@@ -119,6 +119,10 @@ func (s *fitScratch) grow(n int) {
 // as a robust weighted line with w_i = 1/A(h_i)^2 (the reading noise in
 // volume is A σ); c absorbs V(h_0).
 //
+// Submerged outlet (seg.SubmergedM != nil, Method "submerged"): the same
+// balance with q = K sgn(Δ) sqrt(|Δ|), Δ the head across the outlet (the
+// tank's head minus the receiving level above the outlet), see fitInflow.
+//
 // Diagnostics: Exponent is n of q ∝ h^n from a one-step Gauss-Newton
 // update of the augmented model F_n(h) = ∫A s^-n ds at n = 1/2, whose
 // sensitivity is ∂h/∂n = sqrt(h)/A(h) (L(h) - L(h0)),
@@ -143,6 +147,8 @@ func FitDrain(t *Tank, seg *Segment, opt FitOptions) (Fit, error) {
 		return Fit{}, fmt.Errorf("model: fit: tank %q: %d times but %d heads", name, n, len(seg.HeadM))
 	case seg.InflowM3s != nil && len(seg.InflowM3s) != n:
 		return Fit{}, fmt.Errorf("model: fit: tank %q: %d times but %d inflow values", name, n, len(seg.InflowM3s))
+	case seg.SubmergedM != nil && len(seg.SubmergedM) != n:
+		return Fit{}, fmt.Errorf("model: fit: tank %q: %d times but %d receiving levels", name, n, len(seg.SubmergedM))
 	case seg.Kind != Drain && seg.Kind != 0:
 		return Fit{}, fmt.Errorf("model: fit: tank %q: segment is a %v, not a drain", name, seg.Kind)
 	case n < 3:
@@ -175,7 +181,7 @@ func FitDrain(t *Tank, seg *Segment, opt FitOptions) (Fit, error) {
 	for i, tn := range seg.TimeNs {
 		sc.tau[i] = float64(tn-t0) * 1e-9
 	}
-	if seg.InflowM3s != nil {
+	if seg.InflowM3s != nil || seg.SubmergedM != nil {
 		err = fitInflow(&fit, t, ht, seg, sc, d0, o)
 	} else {
 		err = fitLevel(&fit, t, ht, seg, sc, d0, o)

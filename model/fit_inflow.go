@@ -7,38 +7,54 @@ import (
 	"drainsight/model/lsq"
 )
 
-// fitInflow fits the volume balance of a drain with metered inflow:
+// fitInflow fits the volume balance of a drain with metered inflow, with a
+// submerged outlet, or both:
 //
-//	Y_i = V(h_i) - ∫_0^τi q_in dt = c - K X_i,   X_i = ∫_0^τi sqrt(h) dt,
+//	Y_i = V(h_i) - ∫_0^τi q_in dt = c - K X_i,   X_i = ∫_0^τi sgn(Δ) sqrt(|Δ|) dt,
 //
-// both integrals by trapezoids on the samples, h_i = y_i - d0 clamped at 0
-// inside the square root. The reading noise σ becomes A(h_i) σ in Y_i, so
-// the weights are 1/A(h_i)^2 and sqrt(w) × residual is a level residual.
-// The exponent comes from adding X2_i = ∫ sqrt(h) ln h dt:
-// ∫ h^n dt ≈ X + (n - 1/2) X2, so Y = c + b1 X + b2 X2 gives n = 1/2 + b2/b1
-// (delta-method SE). H0M and H1M are the first and last kept readings
-// minus d0.
+// both integrals by trapezoids on the samples, h_i = y_i - d0, and Δ the
+// head across the outlet: h minus the receiving vessel's liquid level above
+// the outlet (Segment.SubmergedM, 0 when it lies below the outlet or the
+// outlet discharges freely), so that q = K sgn(Δ) sqrt(|Δ|) also holds
+// for flow back through the outlet (Δ < 0). The reading noise σ becomes
+// A(h_i) σ in Y_i, so the weights are 1/A(h_i)^2 and sqrt(w) × residual is
+// a level residual (the receiving level's own noise enters X only through
+// the integral, which averages it). The exponent comes from adding
+// X2_i = ∫ sgn(Δ) sqrt(|Δ|) ln|Δ| dt: ∫ |Δ|^n dt ≈ X + (n - 1/2) X2, so
+// Y = c + b1 X + b2 X2 gives n = 1/2 + b2/b1 (delta-method SE). H0M and
+// H1M are the first and last kept readings minus d0. Samples whose inflow
+// or receiving level is missing (NaN) are skipped, their intervals
+// integrated across.
 func fitInflow(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratch, d0 float64, o FitOptions) error {
 	n := len(seg.HeadM)
 	tau := sc.tau
 	x, y, w0 := sc.z, sc.s, sc.w0
 	x2 := make([]float64, n)
+	absDh := make([]float64, n) // |Δ| per sample, for the noise the integral carries
 	nonFinite := 0
 	var cumQ, cumX, cumX2 float64
 	var prevQ, prevS, prevSL float64
 	prevOK := false
 	for i, hm := range seg.HeadM {
-		q := seg.InflowM3s[i]
-		if math.IsNaN(hm) || math.IsInf(hm, 0) || math.IsNaN(q) || math.IsInf(q, 0) {
+		q, sub := 0.0, 0.0
+		if seg.InflowM3s != nil {
+			q = seg.InflowM3s[i]
+		}
+		if seg.SubmergedM != nil {
+			sub = seg.SubmergedM[i]
+		}
+		if math.IsNaN(hm) || math.IsInf(hm, 0) || math.IsNaN(q) || math.IsInf(q, 0) || math.IsNaN(sub) || math.IsInf(sub, 0) {
 			w0[i] = 0
 			nonFinite++
 			continue
 		}
 		h := hm - d0
-		s := math.Sqrt(math.Max(h, 0))
+		dh := math.Max(h, 0) - math.Max(sub, 0)
+		absDh[i] = math.Abs(dh)
+		s := math.Copysign(math.Sqrt(math.Abs(dh)), dh)
 		sl := 0.0
-		if h > 0 {
-			sl = s * math.Log(h)
+		if dh != 0 {
+			sl = s * math.Log(math.Abs(dh))
 		}
 		if prevOK {
 			dt := tau[i] - tau[i-1]
@@ -73,6 +89,9 @@ func fitInflow(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratc
 	}
 	s2 := lf.ss / float64(df)
 	fit.Method = "inflow"
+	if seg.SubmergedM != nil {
+		fit.Method = "submerged"
+	}
 	fit.N = lf.n
 	fit.Outliers = outliers
 	fit.KM25s = -lf.b
@@ -122,6 +141,17 @@ func fitInflow(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratc
 		fit.DurbinWatson = dwNum / lf.ss
 	}
 	inflowSerial(fit, lf, x, y, tau, sc.w)
+	// The readings also enter X, under the square root: add that part.
+	sigmaDh2 := fit.SigmaM * fit.SigmaM
+	if seg.SubmergedM != nil {
+		sigmaDh2 *= 2 // the receiving level is read as noisily
+	}
+	if v := integralNoiseVar(tau, absDh, sc.w, x, sigmaDh2); v > 0 {
+		se := math.Hypot(fit.KSEM25s, fit.KM25s*math.Sqrt(v))
+		tq := tQuantile975(max(fit.EffectiveN-2, 1))
+		fit.KSEM25s = se
+		fit.KLo95M25s, fit.KHi95M25s = fit.KM25s-tq*se, fit.KM25s+tq*se
+	}
 	fit.H0M = seg.HeadM[first] - d0
 	fit.H1M = seg.HeadM[last] - d0
 	if inv, ok := lsq.InverseSPD(ata[:], 3); ok && lf.n > 3 {
@@ -146,6 +176,55 @@ func fitInflow(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratc
 		}
 	}
 	return nil
+}
+
+// integralNoiseVar is the variance that the reading noise inside X adds
+// to the slope -K of the volume-balance line, relative to K^2. With
+// sqrt(|Δ|) read with error e_j/(2 sqrt|Δ_j|), Var e_j = sigmaDh2, X_i carries
+// the sum of the trapezoid increments up to i, a random walk whose steps
+// have variance v_m = (τ_m - τ_{m-1})^2 sigmaDh2 / (4 |Δ_m|) (the two
+// trapezoid halves of a step taken as one). The weighted slope is
+// b = Σ c_i Y_i with c_i = w_i (X_i - X̄)/Σ w (X - X̄)^2, so its error from X is
+// -K Σ c_i δX_i, of variance K^2 Σ_m v_m (Σ_{i≥m} c_i)^2 (first-order
+// errors in variables, Fuller 1987, "Measurement Error Models", §1.1).
+// Small for a free outlet (|Δ| = h is large), it dominates a submerged
+// outlet near equal levels. Samples with |Δ| below the noise count as
+// |Δ| = σ (the square root's error is then bounded by sqrt σ).
+func integralNoiseVar(tau, absDh, w, x []float64, sigmaDh2 float64) float64 {
+	if !(sigmaDh2 > 0) {
+		return 0
+	}
+	var sw, swx float64
+	for i, wi := range w {
+		if wi > 0 {
+			sw += wi
+			swx += wi * x[i]
+		}
+	}
+	if !(sw > 0) {
+		return 0
+	}
+	xb := swx / sw
+	var sxx float64
+	for i, wi := range w {
+		if wi > 0 {
+			sxx += wi * (x[i] - xb) * (x[i] - xb)
+		}
+	}
+	if !(sxx > 0) {
+		return 0
+	}
+	floor := math.Sqrt(sigmaDh2)
+	var tail, v float64
+	for m := len(w) - 1; m >= 1; m-- {
+		if w[m] > 0 {
+			tail += w[m] * (x[m] - xb) / sxx
+		}
+		dt := tau[m] - tau[m-1]
+		d := math.Max(absDh[m], floor)
+		v += dt * dt * sigmaDh2 / (4 * d) * tail * tail
+	}
+	return v
 }
 
 // inflowSerial corrects the standard error of K of the volume-balance line

@@ -200,6 +200,7 @@ type Segmenter struct {
 
 	meterSet bool
 	metered  bool
+	linked   bool // the outlet discharges into a vessel whose level is known (PushSubmerged)
 	finished bool
 	final    bool // FlushFinal: the settle delay no longer holds segments back
 	firstT   int64
@@ -215,7 +216,8 @@ type Segmenter struct {
 	rt   [5]int64
 	rh   [5]float64
 	rq   [5]float64
-	rk   [5]int64 // fkey of rh
+	rs   [5]float64 // receiving level above the outlet (linked only)
+	rk   [5]int64   // fkey of rh
 	rpos int
 	// the two previous accepted samples, for the noise estimate
 	t1, t2   int64
@@ -229,6 +231,7 @@ type Segmenter struct {
 	hr   []float64 // raw reading, m
 	hy   []float64 // median-of-5 level, m
 	hq   []float64 // metered inflow, m^3/s
+	hs   []float64 // receiving level above the outlet, m (linked only)
 	hk   []bool    // spike
 	done int       // samples processed by the detector
 
@@ -338,10 +341,20 @@ func (s *Segmenter) setSigma() {
 // Whether the tank is metered is fixed by the first Push with data. Invalid
 // samples are dropped and counted, never a panic. Push after Flush panics.
 func (s *Segmenter) Push(timeNs []int64, headM, inflowM3s []float64) {
+	s.PushSubmerged(timeNs, headM, inflowM3s, nil)
+}
+
+// PushSubmerged is Push for an outlet that discharges into another vessel:
+// submergedM (nil, or the same length) is that vessel's liquid level above
+// the outlet at each sample (see Series.SubmergedM). Whether the outlet is
+// linked is fixed, like the meter, by the first call with data; the
+// segments then carry it and the mass-balance test uses the head across
+// the outlet.
+func (s *Segmenter) PushSubmerged(timeNs []int64, headM, inflowM3s, submergedM []float64) {
 	if s.finished {
 		panic("model: Segmenter.Push after Flush")
 	}
-	if len(headM) != len(timeNs) || (inflowM3s != nil && len(inflowM3s) != len(timeNs)) {
+	if len(headM) != len(timeNs) || (inflowM3s != nil && len(inflowM3s) != len(timeNs)) || (submergedM != nil && len(submergedM) != len(timeNs)) {
 		panic("model: Segmenter.Push with slices of different lengths")
 	}
 	if len(timeNs) == 0 {
@@ -350,6 +363,7 @@ func (s *Segmenter) Push(timeNs []int64, headM, inflowM3s []float64) {
 	if !s.meterSet {
 		s.meterSet = true
 		s.metered = inflowM3s != nil
+		s.linked = submergedM != nil
 	}
 	nan := math.NaN()
 	for i, t := range timeNs {
@@ -362,6 +376,10 @@ func (s *Segmenter) Push(timeNs []int64, headM, inflowM3s []float64) {
 		q := nan
 		if s.metered && inflowM3s != nil {
 			q = inflowM3s[i]
+		}
+		sub := nan
+		if s.linked && submergedM != nil {
+			sub = submergedM[i]
 		}
 		// accept (t, h, q): the noise estimate, the ring of the last five
 		// samples, and the filtered sample two back
@@ -383,7 +401,7 @@ func (s *Segmenter) Push(timeNs []int64, headM, inflowM3s []float64) {
 		s.t2, s.h2 = s.t1, s.h1
 		s.t1, s.h1 = t, h
 		p := s.rpos
-		s.rt[p], s.rh[p], s.rq[p], s.rk[p] = t, h, q, fkey(h)
+		s.rt[p], s.rh[p], s.rq[p], s.rs[p], s.rk[p] = t, h, q, sub, fkey(h)
 		if p++; p == 5 {
 			p = 0
 		}
@@ -486,6 +504,9 @@ func (s *Segmenter) emit(j, p int, med float64) {
 	s.hk = append(s.hk, spike)
 	if s.metered {
 		s.hq = append(s.hq, s.rq[p])
+	}
+	if s.linked {
+		s.hs = append(s.hs, s.rs[p])
 	}
 	if j > 0 && t-s.prevT > s.stallNs {
 		s.breakAt(j)
@@ -706,7 +727,7 @@ func SegmentSeries(t *Tank, s *Series, opt SegmentOptions) []Segment {
 	if s.Tank != "" {
 		sg.id = s.Tank
 	}
-	sg.Push(s.TimeNs, s.HeadM, s.InflowM3s)
+	sg.PushSubmerged(s.TimeNs, s.HeadM, s.InflowM3s, s.SubmergedM)
 	return sg.Flush()
 }
 
@@ -735,6 +756,9 @@ func (s *Segmenter) compact() {
 	s.hk = s.hk[:copy(s.hk, s.hk[drop:])]
 	if s.metered {
 		s.hq = s.hq[:copy(s.hq, s.hq[drop:])]
+	}
+	if s.linked {
+		s.hs = s.hs[:copy(s.hs, s.hs[drop:])]
 	}
 	s.base = keep
 }

@@ -354,6 +354,9 @@ func (s *Segmenter) fillSamples(g *Segment, a, b int) {
 		if s.metered {
 			g.InflowM3s = slices.Clone(s.hq[x0:x1])
 		}
+		if s.linked {
+			g.SubmergedM = slices.Clone(s.hs[x0:x1])
+		}
 		return
 	}
 	n := x1 - x0 - sp
@@ -361,6 +364,9 @@ func (s *Segmenter) fillSamples(g *Segment, a, b int) {
 	g.HeadM = make([]float64, 0, n)
 	if s.metered {
 		g.InflowM3s = make([]float64, 0, n)
+	}
+	if s.linked {
+		g.SubmergedM = make([]float64, 0, n)
 	}
 	for x := x0; x < x1; x++ {
 		if s.hk[x] {
@@ -370,6 +376,9 @@ func (s *Segmenter) fillSamples(g *Segment, a, b int) {
 		g.HeadM = append(g.HeadM, s.hr[x])
 		if s.metered {
 			g.InflowM3s = append(g.InflowM3s, s.hq[x])
+		}
+		if s.linked {
+			g.SubmergedM = append(g.SubmergedM, s.hs[x])
 		}
 	}
 }
@@ -587,9 +596,9 @@ func (s *Segmenter) kRatio(a, b int, datum float64) float64 {
 func (s *Segmenter) massK(i, j int, datum float64) float64 {
 	num := s.volAt(s.yAt(i)-datum) - s.volAt(s.yAt(j)-datum)
 	den := 0.0
-	r0 := math.Sqrt(max(s.yAt(i)-datum, 0))
+	r0 := s.rootHead(i, datum)
 	for x := i + 1; x <= j; x++ {
-		r1 := math.Sqrt(max(s.yAt(x)-datum, 0))
+		r1 := s.rootHead(x, datum)
 		dt := float64(s.tAt(x)-s.tAt(x-1)) * 1e-9
 		den += 0.5 * (r0 + r1) * dt
 		if s.metered {
@@ -601,6 +610,19 @@ func (s *Segmenter) massK(i, j int, datum float64) float64 {
 		r0 = r1
 	}
 	return num / den
+}
+
+// rootHead is sgn(Δ) sqrt(|Δ|) at sample x, Δ the head across the
+// outlet: the level above the outlet less, for a linked outlet, the
+// receiving level above it (a missing one counts as below the outlet).
+func (s *Segmenter) rootHead(x int, datum float64) float64 {
+	d := max(s.yAt(x)-datum, 0)
+	if s.linked {
+		if r := s.hs[x-s.base]; r > 0 {
+			d -= r
+		}
+	}
+	return math.Copysign(math.Sqrt(math.Abs(d)), d)
 }
 
 // volAt is the volume above the outlet at head h (m^3).

@@ -23,6 +23,11 @@ type Series struct {
 	TimeNs    []int64
 	HeadM     []float64
 	InflowM3s []float64
+	// SubmergedM is nil when the outlet discharges freely. For an outlet
+	// that discharges into another vessel (a tank in cascade, a basin) it
+	// holds, per sample, that vessel's liquid level above this outlet, m
+	// (negative: below the outlet, a free discharge; NaN: not known then).
+	SubmergedM []float64
 }
 
 // Len returns the number of samples.
@@ -72,6 +77,7 @@ type Segment struct {
 	TimeNs     []int64
 	HeadM      []float64
 	InflowM3s  []float64 // nil without an inflow meter
+	SubmergedM []float64 // nil for a free outlet: the receiving level above the outlet, m (see Series)
 	RawStartNs int64
 	RawEndNs   int64
 	Complete   bool
