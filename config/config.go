@@ -108,6 +108,11 @@ type Outlet struct {
 	// estimated per drain.
 	ElevationKnown bool
 	DesignCd       float64 // design discharge coefficient; 0 when not given
+	// DischargesInto is the id of the configured tank (or basin) that this
+	// outlet discharges into; "" for a free discharge. Its level, with the
+	// two tanks' BaseElevationM, gives the level on the far side of the
+	// outlet (model.Series.SubmergedM).
+	DischargesInto string
 }
 
 // SensorKind is "depth" or "pressure".
@@ -209,11 +214,15 @@ type Tank struct {
 	ID          string
 	Site        string
 	Description string
-	Geometry    Geometry
-	Outlet      Outlet
-	Sensor      Sensor
-	Source      Source
-	Detection   Detection
+	// BaseElevationM is the elevation of the vessel bottom above a datum
+	// common to the plant (m, default 0); it matters only between tanks
+	// linked by Outlet.DischargesInto.
+	BaseElevationM float64
+	Geometry       Geometry
+	Outlet         Outlet
+	Sensor         Sensor
+	Source         Source
+	Detection      Detection
 }
 
 // Outputs says where results go.

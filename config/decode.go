@@ -18,6 +18,8 @@ type decoder struct {
 	problems     []Problem
 	fromDefaults map[*yaml.Node]bool
 	readFile     func(string) ([]byte, error)
+	linkNode     *yaml.Node         // the outlet.discharges_into just read
+	linkNodes    map[int]*yaml.Node // by tank index, for the checks across tanks
 }
 
 func (d *decoder) add(path string, n *yaml.Node, format string, a ...any) {

@@ -45,6 +45,8 @@
 //	  id                         as for sites; unique
 //	  site                       (the only site, when there is exactly one)
 //	  description                optional
+//	  base_elevation             (0 m) the vessel bottom above a datum common to the plant;
+//	                             used between tanks linked by outlet.discharges_into
 //	  geometry
 //	    shape                    vertical_cylinder: diameter, height
 //	                             rectangular: length, width, height
@@ -61,6 +63,9 @@
 //	    elevation                above the vessel bottom, below the vessel height, or "unknown"
 //	                             (ElevationKnown false: the datum is estimated per drain)
 //	    design_cd                optional, in (0, 1]
+//	    discharges_into          optional: id of the tank (same site, both read from files)
+//	                             the outlet discharges into; its level above this outlet
+//	                             makes the outlet submerged (model.Series.SubmergedM)
 //	  sensor
 //	    kind                     depth | pressure
 //	    unit                     depth: m cm mm km ft in, or percent (with span);

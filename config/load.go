@@ -115,9 +115,40 @@ func (d *decoder) config(root *yaml.Node) *Config {
 		seenTank[t.ID] = i
 		c.Tanks = append(c.Tanks, t)
 	}
+	d.links(c)
 	c.Outputs = d.outputs(top.get("outputs"), "outputs")
 	top.done()
 	return c
+}
+
+// links checks every outlet.discharges_into: another tank of the same
+// site, read from files (the InfluxDB scan does not pull a second tank's
+// level yet).
+func (d *decoder) links(c *Config) {
+	for i, t := range c.Tanks {
+		into := t.Outlet.DischargesInto
+		if into == "" {
+			continue
+		}
+		path := fmt.Sprintf("tanks[%d].outlet.discharges_into", i)
+		n := d.linkNodes[i]
+		var r *Tank
+		for j := range c.Tanks {
+			if c.Tanks[j].ID == into {
+				r = &c.Tanks[j]
+			}
+		}
+		switch {
+		case into == t.ID:
+			d.add(path, n, "a tank cannot discharge into itself")
+		case r == nil:
+			d.add(path, n, "no tank %q in tanks (a basin that receives the outlet is configured as a tank too)", into)
+		case r.Site != t.Site:
+			d.add(path, n, "tank %q is on site %q, this tank on %q", into, r.Site, t.Site)
+		case t.Source.Format == "influx" || r.Source.Format == "influx":
+			d.add(path, n, "linked tanks must be read from files for now: the InfluxDB scan does not pull the receiving tank's level")
+		}
+	}
 }
 
 // markAll records every node under n.
@@ -244,8 +275,16 @@ func (d *decoder) tank(n *yaml.Node, path string, c *Config) Tank {
 		d.add(path+".site", sn, "no site %q in sites", site)
 	}
 	t.Site = site
+	t.BaseElevationM = quantity(f, "base_elevation", 0, ParseLength, nil)
 	t.Geometry = d.geometry(f.get("geometry"), path+".geometry", f)
+	d.linkNode = nil
 	t.Outlet = d.outlet(f.get("outlet"), path+".outlet", f, t.Geometry.HeightM)
+	if d.linkNode != nil {
+		if d.linkNodes == nil {
+			d.linkNodes = map[int]*yaml.Node{}
+		}
+		d.linkNodes[len(c.Tanks)] = d.linkNode
+	}
 	t.Sensor = d.sensor(f.get("sensor"), path+".sensor", f)
 	t.Source = d.source(f.get("source"), path+".source", f)
 	t.Detection = d.detection(f.get("detection"), path+".detection")
@@ -444,6 +483,9 @@ func (d *decoder) outlet(n *yaml.Node, path string, parent *fields, heightM floa
 	o := Outlet{
 		DiameterM: quantity(f, "diameter", 0, ParseLength, positive),
 		DesignCd:  quantity(f, "design_cd", 0, parseNumber, between(0, 1, true, false)),
+	}
+	if into, en, ok := f.scalar("discharges_into"); ok {
+		o.DischargesInto, d.linkNode = into, en
 	}
 	switch s, en, ok := f.scalar("elevation"); {
 	case en == nil && n != nil:

@@ -407,6 +407,13 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 		g.tanks = append(g.tanks, ft)
 	}
 	var rep ingest.Report
+	if err := j.linkReceivers(ctx, all); err != nil {
+		for _, ft := range all {
+			if ft.run != nil && ft.run.p.cfg.Outlet.DischargesInto != "" {
+				ft.out.err = err
+			}
+		}
+	}
 	var newest int64
 	for _, key := range order {
 		g := groups[key]
@@ -445,6 +452,78 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 	}
 	return all, rep, newestT
 }
+
+// linkReceivers gives every tank whose outlet discharges into another tank
+// that tank's level history, read once per receiving tank from its own
+// files (level above its bottom), for the head across the outlet.
+func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) error {
+	levels := map[string]*model.ReceivingLevel{}
+	for _, ft := range tanks {
+		if ft.run == nil || ft.run.p.cfg.Outlet.DischargesInto == "" {
+			continue
+		}
+		a := ft.run.p.cfg
+		var rp *plan
+		for _, p := range j.plans {
+			if p.cfg.ID == a.Outlet.DischargesInto {
+				rp = p
+			}
+		}
+		if rp == nil {
+			return fmt.Errorf("tank %s: outlet.discharges_into: no tank %q", a.ID, a.Outlet.DischargesInto)
+		}
+		lv := levels[rp.cfg.ID]
+		if lv == nil {
+			var err error
+			if lv, err = readReceiver(ctx, rp); err != nil {
+				return fmt.Errorf("tank %s: the level of %s, which its outlet discharges into: %w", a.ID, rp.cfg.ID, err)
+			}
+			levels[rp.cfg.ID] = lv
+		}
+		r := *lv
+		r.OutletAboveM = a.BaseElevationM + a.Outlet.ElevationM - rp.cfg.BaseElevationM
+		ft.run.recv = &r
+	}
+	return nil
+}
+
+// readReceiver reads a receiving tank's level above its bottom from its
+// files (their problems are reported by the receiving tank's own read).
+func readReceiver(ctx context.Context, p *plan) (*model.ReceivingLevel, error) {
+	src := p.cfg.Source
+	format, err := ingest.ParseFormat(src.Format)
+	if err != nil {
+		return nil, err
+	}
+	prec, err := ingest.ParsePrecision(src.Precision)
+	if err != nil {
+		return nil, err
+	}
+	conv := p.conv
+	conv.OutletElevM, conv.InflowToSI = 0, 0
+	opt := ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field, TankTag: src.TankTag}
+	all, _, err := ingest.ReadSeries(ctx, src.Paths, format, opt, map[string]ingest.Conversion{p.cfg.ID: conv})
+	if err != nil {
+		return nil, err
+	}
+	r := &model.ReceivingLevel{MaxGapNs: int64(receiverMaxGap)}
+	if s := all[p.cfg.ID]; s != nil {
+		r.TimeNs, r.LevelM = s.TimeNs, s.HeadM
+		if n := s.Len(); n > 1 {
+			dts := make([]int64, n-1)
+			for i := range dts {
+				dts[i] = s.TimeNs[i+1] - s.TimeNs[i]
+			}
+			slices.Sort(dts)
+			r.MaxGapNs = max(r.MaxGapNs, 4*dts[len(dts)/2])
+		}
+	}
+	return r, nil
+}
+
+// receiverMaxGap is the shortest interval of the receiving tank's samples
+// not interpolated across (or four of its usual intervals, if longer).
+const receiverMaxGap = 10 * time.Minute
 
 // updateAlerts runs the alert lifecycle over every evaluation of the pass
 // in time order (tanks evaluated at the same instant together) and persists

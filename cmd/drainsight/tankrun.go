@@ -67,6 +67,9 @@ type tankRun struct {
 	idles  []model.IdleFit
 	fitErr int
 	drains int
+	// recv is the level of the tank the outlet discharges into; nil for a
+	// free outlet.
+	recv *model.ReceivingLevel
 	// complete is set before the pass's final commit when the tank's
 	// history is known to be complete (scan --final, or --now past its
 	// last sample by more than the settle delay): the drain under way and
@@ -236,7 +239,11 @@ func (r *tankRun) push(s *model.Series) {
 	r.total += int64(s.Len())
 	r.lastNs = s.TimeNs[s.Len()-1]
 	r.det.AddSeries(s, r.p.detOpt)
-	r.seg.Push(s.TimeNs, s.HeadM, s.InflowM3s)
+	if r.recv != nil {
+		r.seg.PushSubmerged(s.TimeNs, s.HeadM, s.InflowM3s, r.recv.At(s.TimeNs))
+	} else {
+		r.seg.Push(s.TimeNs, s.HeadM, s.InflowM3s)
+	}
 	r.fitSegments(r.seg.Take())
 	r.takeFalls()
 }
