@@ -137,3 +137,36 @@ func (g *geom) head(v float64) float64 {
 	}
 	return h
 }
+
+// volSigned is vol extended below the outlet: the (negative) volume between
+// the outlet and head h < 0, down to the vessel bottom at h = -elev.
+func (g *geom) volSigned(h float64) float64 {
+	if h >= 0 {
+		return g.vol(h)
+	}
+	return g.shape.VolumeM3(max(h+g.elev, 0)) - g.v0
+}
+
+// headSigned is the inverse of volSigned: below the outlet (v < 0) the head
+// is found by bisection between the vessel bottom and the outlet.
+func (g *geom) headSigned(v float64) float64 {
+	if v >= 0 || !(g.elev > 0) {
+		return g.head(v)
+	}
+	if v <= -g.v0 {
+		return -g.elev
+	}
+	a, b := -g.elev, 0.0
+	for range 100 {
+		m := 0.5 * (a + b)
+		if g.volSigned(m) > v {
+			b = m
+		} else {
+			a = m
+		}
+		if b-a < 1e-13 {
+			break
+		}
+	}
+	return 0.5 * (a + b)
+}

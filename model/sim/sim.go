@@ -25,9 +25,12 @@ const (
 	Erosion
 	// DownstreamLeak: K rises abruptly to (1 + Magnitude) K at Start (until End if set).
 	DownstreamLeak
-	// TankLeak: an extra outflow K_leak sqrt(h), also while the outlet is
-	// shut; K_leak = Magnitude × KM25s, reached gradually when End > Start,
-	// at once (and for good) when End is zero.
+	// TankLeak: an extra outflow K_leak sqrt(h - ElevM) while the level is
+	// above the leak opening, also while the outlet is shut; K_leak =
+	// Magnitude × KM25s, reached gradually when End > Start, at once (and
+	// for good) when End is zero. ElevM is the opening's elevation above the
+	// outlet (0: at the outlet, negative: below it, where the tank keeps
+	// leaking below the outlet down to the opening or the vessel bottom).
 	TankLeak
 	// SensorStuck: the reading freezes at its value at Start until End.
 	SensorStuck
@@ -59,6 +62,9 @@ type Fault struct {
 	Start, End time.Time
 	Magnitude  float64
 	SizeM      float64 // SensorSpikes only: typical spike height, m
+	// ElevM (TankLeak only) is the leak opening's elevation above the
+	// outlet, m; negative below it.
+	ElevM float64
 }
 
 // TankSpec describes one simulated tank, its duty and its faults.
@@ -172,19 +178,47 @@ func (s *TankSpec) kAt(ts float64, from time.Time, endS float64) float64 {
 func (s *TankSpec) leakAt(ts float64, from time.Time, endS float64) float64 {
 	k := 0.0
 	for _, f := range s.Faults {
-		if f.Kind != TankLeak {
-			continue
+		if f.Kind == TankLeak {
+			k += s.leakOne(f, ts, from, endS)
 		}
-		w := span(f, from, endS)
-		if f.End.IsZero() {
-			if ts >= w.a {
-				k += f.Magnitude * s.KM25s
-			}
-			continue
-		}
-		k += f.Magnitude * s.KM25s * ramp(ts, w)
 	}
 	return k
+}
+
+// leakOne is the leak constant of one TankLeak fault at ts.
+func (s *TankSpec) leakOne(f Fault, ts float64, from time.Time, endS float64) float64 {
+	w := span(f, from, endS)
+	if f.End.IsZero() {
+		if ts >= w.a {
+			return f.Magnitude * s.KM25s
+		}
+		return 0
+	}
+	return f.Magnitude * s.KM25s * ramp(ts, w)
+}
+
+// elevatedLeak tells whether a leak opening lies off the outlet, so that
+// the outflow is no longer one constant times sqrt(h) and the plant is
+// integrated by RK4 on the volume throughout.
+func (s *TankSpec) elevatedLeak() bool {
+	for _, f := range s.Faults {
+		if f.Kind == TankLeak && f.ElevM != 0 {
+			return true
+		}
+	}
+	return false
+}
+
+// leakFlow is the leak outflow at ts and head h, m^3/s: the sum of
+// K_leak sqrt(h - ElevM) over the leaks whose opening lies below the level.
+func (s *TankSpec) leakFlow(ts, h float64, from time.Time, endS float64) float64 {
+	q := 0.0
+	for _, f := range s.Faults {
+		if f.Kind == TankLeak && h > f.ElevM {
+			q += s.leakOne(f, ts, from, endS) * math.Sqrt(h-f.ElevM)
+		}
+	}
+	return q
 }
 
 const (
@@ -204,6 +238,9 @@ type plant struct {
 
 	t, h  float64
 	phase int
+	// rk: a leak opening off the outlet; every phase is integrated by RK4
+	// on the (signed) volume, and the head may fall below the outlet.
+	rk bool
 
 	// drain under way
 	dStart   float64
@@ -230,6 +267,7 @@ func Simulate(spec TankSpec, from, to time.Time, rng *rand.Rand) (model.Series, 
 	tr := Truth{Tank: spec.Tank.ID, Faults: append([]Fault(nil), spec.Faults...), spec: spec, from: from, endS: endS}
 	p := &plant{spec: &spec, g: newGeom(&spec.Tank), rng: rng, from: from, endS: endS, truth: &tr}
 	p.h = min(spec.FillToM, p.g.hMax)
+	p.rk = spec.elevatedLeak()
 	p.fillRate = spec.FillRateM3s
 	if !(p.fillRate > 0) {
 		p.fillRate = p.g.vol(spec.FillToM) / 3600
@@ -367,7 +405,7 @@ func (p *plant) afterDrain() {
 		return
 	}
 	p.planDrain()
-	dur := max(p.g.vol(p.spec.FillToM)-p.g.vol(p.h), 0) / p.fillRate
+	dur := max(p.vol(p.spec.FillToM)-p.vol(p.h), 0) / p.fillRate
 	p.nextFill = max(p.t+p.unif(300, 1800), p.slotT-dur-p.unif(1800, 7200))
 }
 
@@ -406,7 +444,7 @@ func (p *plant) advance(ts float64) {
 		case pIdle:
 			ev := min(p.nextFill, p.nextDrain)
 			e := min(ev, ts)
-			p.runF(e, -1)
+			p.runShut(e)
 			if e == ev {
 				if p.nextDrain <= p.nextFill {
 					p.startDrain()
@@ -431,7 +469,7 @@ func (p *plant) advance(ts float64) {
 				inflow = true
 			}
 			var stop bool
-			if inflow {
+			if inflow || p.rk {
 				stop = p.runRK(e, p.target, true)
 			} else {
 				stop = p.runF(e, p.target)
@@ -441,7 +479,7 @@ func (p *plant) advance(ts float64) {
 			}
 		case pHold:
 			e := min(p.holdEnd, ts)
-			p.runF(e, -1)
+			p.runShut(e)
 			if e == p.holdEnd {
 				p.afterDrain()
 			}
@@ -564,15 +602,37 @@ func (p *plant) runF(tEnd, stop float64) bool {
 	return false
 }
 
+// runShut advances to tEnd with the outlet shut and nothing flowing in (or
+// the valve open and the tank empty): by the exact transform, or by RK4 in
+// steps of at most 30 s when a leak opening lies off the outlet (a leak
+// drains a tank over hours, so the steps are short beside it).
+func (p *plant) runShut(tEnd float64) {
+	if !p.rk {
+		p.runF(tEnd, -1)
+		return
+	}
+	p.runRKStep(tEnd, math.NaN(), true, 30)
+}
+
 // runRK advances to tEnd with inflow by RK4 on the volume; it stops early,
 // exactly at head stop, when the head crosses it (down or up).
 func (p *plant) runRK(tEnd, stop float64, down bool) bool {
+	return p.runRKStep(tEnd, stop, down, 1)
+}
+
+// runRKStep is runRK with steps of at most maxStep seconds; a NaN stop
+// never stops. With a leak opening off the outlet the volume is signed and
+// the head may fall below the outlet.
+func (p *plant) runRKStep(tEnd, stop float64, down bool, maxStep float64) bool {
 	if tEnd <= p.t {
 		return false
 	}
-	v := p.g.vol(p.h)
-	vs := p.g.vol(stop)
+	v := p.vol(p.h)
+	vs := p.vol(stop)
 	crossed := func(x float64) bool {
+		if math.IsNaN(vs) {
+			return false
+		}
 		if down {
 			return x <= vs
 		}
@@ -582,7 +642,7 @@ func (p *plant) runRK(tEnd, stop float64, down bool) bool {
 		p.h = stop
 		return true
 	}
-	stopped := p.cuts(p.t, tEnd, 1, func(a, b float64) bool {
+	stopped := p.cuts(p.t, tEnd, maxStep, func(a, b float64) bool {
 		vn := p.rk4(a, v, b-a)
 		if crossed(vn) {
 			lo, hi := 0.0, b-a
@@ -604,12 +664,36 @@ func (p *plant) runRK(tEnd, stop float64, down bool) bool {
 		return true
 	}
 	p.t = tEnd
-	p.h = p.g.head(v)
+	p.h = p.head(v)
 	return false
 }
 
+// vol and head are the geometry's, signed below the outlet when a leak
+// opening lies off it.
+func (p *plant) vol(h float64) float64 {
+	if p.rk {
+		return p.g.volSigned(h)
+	}
+	return p.g.vol(h)
+}
+
+func (p *plant) head(v float64) float64 {
+	if p.rk {
+		return p.g.headSigned(v)
+	}
+	return p.g.head(v)
+}
+
 func (p *plant) dvdt(t, v float64) float64 {
-	return p.inflowAt(t) - p.kTot(t)*math.Sqrt(p.g.head(v))
+	if !p.rk {
+		return p.inflowAt(t) - p.kTot(t)*math.Sqrt(p.g.head(v))
+	}
+	h := p.head(v)
+	q := p.inflowAt(t) - p.spec.leakFlow(t, h, p.from, p.endS)
+	if (p.phase == pDrain || p.phase == pHold) && h > 0 {
+		q -= p.kValve(t) * math.Sqrt(h)
+	}
+	return q
 }
 
 func (p *plant) rk4(t, v, dt float64) float64 {

@@ -291,3 +291,38 @@ func TestDemoSegmentation(t *testing.T) {
 		}
 	}
 }
+
+// TestLeakOpeningElevation checks a shut tank leaking through an opening off
+// the outlet against Torricelli's law for a vertical cylinder of area A:
+// A dh/dt = -K_l sqrt(h - z) gives sqrt(h(t) - z) = sqrt(h0 - z) - K_l t/(2A)
+// (closed form, computed), until the level reaches the opening z. Above the
+// outlet (z = 0.5 m) the level stops at z; below it (z = -0.3 m, the vessel
+// bottom 0.4 m below the outlet) it keeps falling below the outlet and the
+// reading goes negative.
+func TestLeakOpeningElevation(t *testing.T) {
+	const areaM2, h0 = 2.0, 2.0
+	tk := model.Tank{ID: "leak", Shape: model.VerticalCylinder{DiameterM: math.Sqrt(4 * areaM2 / math.Pi), InternalHeightM: 3.4}, OutletElevM: 0.4}
+	const kOut = 1e-3
+	for _, z := range []float64{0.5, -0.3} {
+		kl := 0.04 * kOut
+		spec := TankSpec{Tank: tk, KM25s: kOut, SampleEvery: time.Minute, FillToM: h0,
+			Faults: []Fault{{Kind: TankLeak, Start: t0, Magnitude: kl / kOut, ElevM: z}}}
+		s, _ := Simulate(spec, t0, t0.Add(72*time.Hour), rand.New(rand.NewPCG(1, 1)))
+		tEmpty := 2 * areaM2 * math.Sqrt(h0-z) / kl // s, the level reaches z
+		for i, tn := range s.TimeNs {
+			ts := float64(tn-t0.UnixNano()) * 1e-9
+			want := z
+			if ts < tEmpty {
+				r := math.Sqrt(h0-z) - kl*ts/(2*areaM2)
+				want = z + r*r
+			}
+			if math.Abs(s.HeadM[i]-want) > 1e-6 {
+				t.Fatalf("opening at %+.1f m: head %.7f m at %.0f s, want %.7f m (Torricelli)", z, s.HeadM[i], ts, want)
+			}
+		}
+		last := s.HeadM[len(s.HeadM)-1]
+		if z < 0 && !(last < 0) {
+			t.Errorf("opening below the outlet: last head %.4f m, want below the outlet", last)
+		}
+	}
+}
