@@ -530,7 +530,7 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 		return
 	}
 	r := s.kRatio(a, b, datum)
-	if !(r >= ratioLo && r <= ratioHi) {
+	if !(r >= ratioLo && r <= ratioHi) || !s.metered && s.feedDip(a, b, datum) {
 		s.rejectFall(k, e, drop, FallInflow)
 		return
 	}
