@@ -122,7 +122,14 @@ func openTankRun(st *store.Store, p *plan, log *slog.Logger) (*tankRun, int64, e
 		}
 	}
 	r.maintChanged = saved.Detector != nil && saved.Maintenance != r.maint
-	if saved.Detector == nil || saved.Maintenance != r.maint {
+	stale := saved.Detector != nil && saved.Detector.Version != detect.StateVersion
+	if stale {
+		// Written by another release: its fields may not mean what this
+		// one reads. The stored fits and idle periods are the record.
+		log.Warn("detector state of another layout rebuilt from the stored fits", "tank", id,
+			"version", saved.Detector.Version, "want", detect.StateVersion)
+	}
+	if saved.Detector == nil || saved.Maintenance != r.maint || stale {
 		if r.det, err = replay(st, p, recs); err != nil {
 			return nil, 0, err
 		}
