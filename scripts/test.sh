@@ -14,6 +14,9 @@ if [ -n "$bad" ]; then
 	echo "gofmt would change:"; echo "$bad"; exit 1
 fi
 
+echo "== go mod tidy -diff (go.mod and go.sum list exactly what the code imports)"
+go mod tidy -diff
+
 echo "== go vet"
 go vet ./...
 

@@ -180,3 +180,52 @@ func TestConfigLinks(t *testing.T) {
 		}
 	}
 }
+
+// TestScanLinkedReceiverMissing: when the receiving tank's files cannot be
+// read, the linked tank fails too (nothing of it is fitted as a free
+// outlet), and each failure names its tank once.
+func TestScanLinkedReceiverMissing(t *testing.T) {
+	dir := t.TempDir()
+	ts := []int64{time.Date(2031, 5, 1, 0, 0, 0, 0, time.UTC).UnixNano()}
+	f, err := os.Create(filepath.Join(dir, "UP.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := ingest.WriteCSV(f, "UP", ts, []float64{1}); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	cfg := `tanks:
+  - id: UP
+    geometry: {shape: vertical_cylinder, diameter: 1 m, height: 2 m}
+    outlet: {diameter: 40 mm, elevation: 0 m, discharges_into: LO}
+    sensor: {kind: depth, unit: m}
+    source: {format: csv, paths: [UP.csv]}
+  - id: LO
+    geometry: {shape: vertical_cylinder, diameter: 1 m, height: 2 m}
+    outlet: {diameter: 40 mm, elevation: 0 m}
+    sensor: {kind: depth, unit: m}
+    source: {format: csv, paths: [LO-missing.csv]}
+outputs: {directory: out}
+`
+	path := filepath.Join(dir, "plant.yaml")
+	if err := os.WriteFile(path, []byte(cfg), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out, _, err := runArgs(t, "scan", "--config", path)
+	if err == nil {
+		t.Fatalf("scan succeeded with the receiving tank's files missing:\n%s", out)
+	}
+	var up string
+	for _, l := range strings.Split(out, "\n") {
+		if strings.HasPrefix(l, "FAILED UP:") {
+			up = l
+		}
+	}
+	if up == "" || strings.Count(up, "UP") != 1 || !strings.Contains(up, "the level of LO") {
+		t.Errorf("want one FAILED line naming UP once and the level of LO; got %q in\n%s", up, out)
+	}
+	if strings.Count(err.Error(), "tank UP") != 1 {
+		t.Errorf("error names UP %d times: %v", strings.Count(err.Error(), "tank UP"), err)
+	}
+}

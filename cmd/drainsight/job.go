@@ -407,13 +407,7 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 		g.tanks = append(g.tanks, ft)
 	}
 	var rep ingest.Report
-	if err := j.linkReceivers(ctx, all); err != nil {
-		for _, ft := range all {
-			if ft.run != nil && ft.run.p.cfg.Outlet.DischargesInto != "" {
-				ft.out.err = err
-			}
-		}
-	}
+	j.linkReceivers(ctx, all)
 	var newest int64
 	for _, key := range order {
 		g := groups[key]
@@ -455,9 +449,11 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 
 // linkReceivers gives every tank whose outlet discharges into another tank
 // that tank's level history, read once per receiving tank from its own
-// files (level above its bottom), for the head across the outlet.
-func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) error {
+// files (level above its bottom), for the head across the outlet. A tank
+// whose receiving level cannot be read fails (nothing of it is committed).
+func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) {
 	levels := map[string]*model.ReceivingLevel{}
+	failed := map[string]error{}
 	for _, ft := range tanks {
 		if ft.run == nil || ft.run.p.cfg.Outlet.DischargesInto == "" {
 			continue
@@ -470,21 +466,25 @@ func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) error {
 			}
 		}
 		if rp == nil {
-			return fmt.Errorf("tank %s: outlet.discharges_into: no tank %q", a.ID, a.Outlet.DischargesInto)
+			ft.out.err = fmt.Errorf("outlet.discharges_into: no tank %q", a.Outlet.DischargesInto)
+			continue
 		}
-		lv := levels[rp.cfg.ID]
-		if lv == nil {
-			var err error
+		lv, err := levels[rp.cfg.ID], failed[rp.cfg.ID]
+		if lv == nil && err == nil {
 			if lv, err = readReceiver(ctx, rp); err != nil {
-				return fmt.Errorf("tank %s: the level of %s, which its outlet discharges into: %w", a.ID, rp.cfg.ID, err)
+				failed[rp.cfg.ID] = err
+			} else {
+				levels[rp.cfg.ID] = lv
 			}
-			levels[rp.cfg.ID] = lv
+		}
+		if err != nil {
+			ft.out.err = fmt.Errorf("the level of %s, which the outlet discharges into: %w", rp.cfg.ID, err)
+			continue
 		}
 		r := *lv
 		r.OutletAboveM = a.BaseElevationM + a.Outlet.ElevationM - rp.cfg.BaseElevationM
 		ft.run.recv = &r
 	}
-	return nil
 }
 
 // readReceiver reads a receiving tank's level above its bottom from its

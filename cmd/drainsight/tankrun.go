@@ -118,7 +118,7 @@ func openTankRun(st *store.Store, p *plan, log *slog.Logger) (*tankRun, int64, e
 	var saved savedState
 	if len(blob) > 0 {
 		if err := decodeState(blob, &saved); err != nil {
-			return nil, 0, fmt.Errorf("tank %s: stored detector state: %w", id, err)
+			return nil, 0, fmt.Errorf("stored detector state: %w", err)
 		}
 	}
 	r.maintChanged = saved.Detector != nil && saved.Maintenance != r.maint
@@ -320,7 +320,7 @@ func (r *tankRun) commit(final bool, nowNs int64) (fits []model.Fit, err error) 
 	}
 	blob, err := encodeState(savedState{Maintenance: r.maint, Detector: r.det})
 	if err != nil {
-		return nil, fmt.Errorf("tank %s: encode detector state: %w", r.p.cfg.ID, err)
+		return nil, fmt.Errorf("encode detector state: %w", err)
 	}
 	// UpdatedNs is the evaluation time of the pass, written only by its
 	// final commit: a pass interrupted after some windows leaves the old
