@@ -135,7 +135,7 @@ func (s *fitScratch) grow(n int) {
 func FitDrain(t *Tank, seg *Segment, opt FitOptions) (Fit, error) {
 	o := opt.withDefaults()
 	if seg == nil {
-		return Fit{}, errors.New("model: fit: nil segment")
+		return Fit{}, &FitError{Reason: FitBadInput, Err: errors.New("nil segment")}
 	}
 	name := seg.Tank
 	if name == "" && t != nil {
@@ -144,22 +144,22 @@ func FitDrain(t *Tank, seg *Segment, opt FitOptions) (Fit, error) {
 	n := len(seg.TimeNs)
 	switch {
 	case len(seg.HeadM) != n:
-		return Fit{}, fmt.Errorf("model: fit: tank %q: %d times but %d heads", name, n, len(seg.HeadM))
+		return Fit{}, &FitError{FitBadInput, name, fmt.Errorf("%d times but %d heads", n, len(seg.HeadM))}
 	case seg.InflowM3s != nil && len(seg.InflowM3s) != n:
-		return Fit{}, fmt.Errorf("model: fit: tank %q: %d times but %d inflow values", name, n, len(seg.InflowM3s))
+		return Fit{}, &FitError{FitBadInput, name, fmt.Errorf("%d times but %d inflow values", n, len(seg.InflowM3s))}
 	case seg.SubmergedM != nil && len(seg.SubmergedM) != n:
-		return Fit{}, fmt.Errorf("model: fit: tank %q: %d times but %d receiving levels", name, n, len(seg.SubmergedM))
+		return Fit{}, &FitError{FitBadInput, name, fmt.Errorf("%d times but %d receiving levels", n, len(seg.SubmergedM))}
 	case seg.Kind != Drain && seg.Kind != 0:
-		return Fit{}, fmt.Errorf("model: fit: tank %q: segment is a %v, not a drain", name, seg.Kind)
+		return Fit{}, &FitError{FitBadInput, name, fmt.Errorf("segment is a %v, not a drain", seg.Kind)}
 	case n < 3:
-		return Fit{}, fmt.Errorf("model: fit: tank %q: %d samples, need at least 3", name, n)
+		return Fit{}, &FitError{FitTooFewSamples, name, fmt.Errorf("%d samples, need at least 3", n)}
 	}
 	if t == nil {
-		return Fit{}, fmt.Errorf("model: fit: tank %q: nil tank", name)
+		return Fit{}, &FitError{FitBadInput, name, errors.New("nil tank")}
 	}
 	ht, err := TransformFor(t)
 	if err != nil {
-		return Fit{}, fmt.Errorf("model: fit: %w", err)
+		return Fit{}, &FitError{FitBadInput, name, err}
 	}
 	fit := Fit{
 		Tank: name, StartNs: seg.TimeNs[0], EndNs: seg.TimeNs[n-1],
@@ -187,7 +187,12 @@ func FitDrain(t *Tank, seg *Segment, opt FitOptions) (Fit, error) {
 		err = fitLevel(&fit, t, ht, seg, sc, d0, o)
 	}
 	if err != nil {
-		return Fit{}, fmt.Errorf("model: fit: tank %q: %w", name, err)
+		r := FitBadInput
+		var f *failure
+		if errors.As(err, &f) {
+			r = f.reason
+		}
+		return Fit{}, &FitError{Reason: r, Tank: name, Err: err}
 	}
 	fit.CdAM2 = CdAFromK(fit.KM25s)
 	fit.Cd = CdFromK(fit.KM25s, t.OutletDiamM)
@@ -246,10 +251,10 @@ func fitLevel(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratch
 	}
 	lf := robustLineFit(tau, z, w0, sc.w, sc.s, sc.out, o.Tukey, o.TuningC, o.OutlierZ, o.IRLSIterations)
 	if lf.n < 3 || math.IsNaN(lf.b) {
-		return fmt.Errorf("%d samples with a positive head, need at least 3", lf.n)
+		return failf(FitTooFewSamples, "%d samples with a positive head, need at least 3", lf.n)
 	}
 	if !(lf.b < 0) {
-		return fmt.Errorf("the level does not fall (transformed slope %g m^2.5/s)", lf.b)
+		return failf(FitNotFalling, "the level does not fall (transformed slope %g m^2.5/s)", lf.b)
 	}
 	// Samples left out of stage 1 (head <= 0): judge them in level units.
 	outliers := nonFinite
@@ -288,7 +293,7 @@ func fitLevel(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratch
 		np = 3
 	}
 	if m <= np+1 {
-		return fmt.Errorf("%d samples after removing outliers, need at least %d", m, np+2)
+		return failf(FitTooFewSamples, "%d samples after removing outliers, need at least %d", m, np+2)
 	}
 	p0 := []float64{lf.a, -lf.b, d0}[:np]
 	normal := levelNormal(ht, tt, yy, np)
@@ -548,7 +553,7 @@ func levelDiagnostics(fit *Fit, ht *HeadTransform, tt, yy []float64, f0, k, d fl
 func finishLinear(fit *Fit, ht *HeadTransform, lf lineFit, tau []float64, n int, d0 float64) error {
 	df := lf.n - 2
 	if df <= 0 || !(lf.sxx > 0) {
-		return fmt.Errorf("%d usable samples, need at least 3", lf.n)
+		return failf(FitTooFewSamples, "%d usable samples, need at least 3", lf.n)
 	}
 	s2 := lf.ss / float64(df)
 	fit.Method = "wls"

@@ -1,7 +1,6 @@
 package model
 
 import (
-	"fmt"
 	"math"
 
 	"drainsight/model/lsq"
@@ -76,10 +75,10 @@ func fitInflow(fit *Fit, t *Tank, ht *HeadTransform, seg *Segment, sc *fitScratc
 	lf := robustLineFit(x, y, w0, sc.w, scratch, sc.out, o.Tukey, o.TuningC, o.OutlierZ, o.IRLSIterations)
 	df := lf.n - 2
 	if df <= 0 || !(lf.sxx > 0) {
-		return fmt.Errorf("%d usable samples for the volume balance, need at least 3", lf.n)
+		return failf(FitTooFewSamples, "%d usable samples for the volume balance, need at least 3", lf.n)
 	}
 	if !(lf.b < 0) {
-		return fmt.Errorf("the volume balance shows no outflow (slope %g m^2.5/s)", lf.b)
+		return failf(FitNotFalling, "the volume balance shows no outflow (slope %g m^2.5/s)", lf.b)
 	}
 	outliers := nonFinite
 	for i := range n {

@@ -380,6 +380,7 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 func printFalls(w io.Writer, outcomes []tankOutcome) {
 	var st model.SegmentStats
 	fitFailed := 0
+	by := map[model.FitFailure]int{}
 	for _, o := range outcomes {
 		s := o.seg
 		st.Falls += s.Falls
@@ -391,10 +392,19 @@ func printFalls(w io.Writer, outcomes []tankOutcome) {
 		st.RejectedInflow += s.RejectedInflow
 		st.Pending += s.Pending
 		fitFailed += o.fitFailed
+		for r, n := range o.fitFailedBy {
+			by[r] += n
+		}
 	}
 	fmt.Fprintf(w, "Falls: %d seen, %d drains (%d fitted", st.Falls, st.Drains, st.Drains-fitFailed)
 	if fitFailed > 0 {
-		fmt.Fprintf(w, ", %d fits failed", fitFailed)
+		var why []string
+		for _, r := range []model.FitFailure{model.FitTooFewSamples, model.FitNotFalling, model.FitBadInput} {
+			if by[r] > 0 {
+				why = append(why, fmt.Sprintf("%d %s", by[r], r))
+			}
+		}
+		fmt.Fprintf(w, ", %d fits failed: %s", fitFailed, strings.Join(why, ", "))
 	}
 	fmt.Fprint(w, ")")
 	var rej []string

@@ -219,7 +219,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	for _, t := range tanks {
 		if t.run != nil {
 			t.out.samples, t.out.drains, t.out.reset = t.run.total, t.run.drains, t.run.maintChanged
-			t.out.seg, t.out.falls, t.out.fitFailed = t.run.seg.Stats(), t.run.falls, t.run.fitErr
+			t.out.seg, t.out.falls, t.out.fitFailed, t.out.fitFailedBy = t.run.seg.Stats(), t.run.falls, t.run.fitErr, t.run.fitErrBy
 		}
 		if t.run != nil && t.out.err != nil {
 			t.out.evals = t.run.evals // evaluated before the failure

@@ -125,9 +125,10 @@ type tankOutcome struct {
 	gaps []detect.Gap
 	// seg counts what the segmenter saw and decided; falls lists each
 	// fall; fitFailed counts drains whose fit failed.
-	seg       model.SegmentStats
-	falls     []model.Fall
-	fitFailed int
+	seg         model.SegmentStats
+	falls       []model.Fall
+	fitFailed   int
+	fitFailedBy map[model.FitFailure]int
 }
 
 // feedRecord is one tank's feed at the end of a pass: one line of
@@ -350,7 +351,7 @@ func (f *fileTank) finish(now time.Time, complete bool) tankOutcome {
 	f.run.complete = complete
 	o.fits, o.err = f.run.commit(true, now.UnixNano())
 	o.samples, o.drains, o.reset = f.run.total, f.run.drains, f.run.maintChanged
-	o.seg, o.falls, o.fitFailed = f.run.seg.Stats(), f.run.falls, f.run.fitErr
+	o.seg, o.falls, o.fitFailed, o.fitFailedBy = f.run.seg.Stats(), f.run.falls, f.run.fitErr, f.run.fitErrBy
 	if o.err == nil {
 		o.evals = append(f.run.evals, evaluate(f.run.det, now, f.run.p.detOpt))
 		o.gaps = f.run.det.GapsBetween(time.Unix(0, f.run.prevEvalNs), now)

@@ -55,18 +55,19 @@ type savedState struct {
 // tankRun carries one tank through one scan: segmenter, fits, detector and
 // the commits to the store. It is used by one goroutine at a time.
 type tankRun struct {
-	p      *plan
-	st     *store.Store
-	log    *slog.Logger
-	det    *detect.State
-	seg    *model.Segmenter
-	cp     store.Checkpoint
-	hadCP  bool
-	maint  string
-	fresh  []model.Fit // fits of this scan, in time order
-	idles  []model.IdleFit
-	fitErr int
-	drains int
+	p        *plan
+	st       *store.Store
+	log      *slog.Logger
+	det      *detect.State
+	seg      *model.Segmenter
+	cp       store.Checkpoint
+	hadCP    bool
+	maint    string
+	fresh    []model.Fit // fits of this scan, in time order
+	idles    []model.IdleFit
+	fitErr   int
+	fitErrBy map[model.FitFailure]int // fitErr by reason
+	drains   int
 	// recv is the level of the tank the outlet discharges into; nil for a
 	// free outlet.
 	recv *model.ReceivingLevel
@@ -274,6 +275,10 @@ func (r *tankRun) fitSegments(segs []model.Segment) {
 			f, err := model.FitDrain(&r.p.tank, sg, r.p.fitOpt)
 			if err != nil {
 				r.fitErr++
+				if r.fitErrBy == nil {
+					r.fitErrBy = map[model.FitFailure]int{}
+				}
+				r.fitErrBy[model.FitFailureOf(err)]++
 				r.log.Debug("drain not fitted", "tank", r.p.cfg.ID, "start", sg.Start(), "err", err)
 				continue
 			}
