@@ -63,7 +63,7 @@
 //	    elevation                above the vessel bottom, below the vessel height, or "unknown"
 //	                             (ElevationKnown false: the datum is estimated per drain)
 //	    design_cd                optional, in (0, 1]
-//	    discharges_into          optional: id of the tank (same site, both read from files)
+//	    discharges_into          optional: id of the tank (same site, read the same way)
 //	                             the outlet discharges into; its level above this outlet
 //	                             makes the outlet submerged (model.Series.SubmergedM)
 //	  sensor

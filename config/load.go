@@ -122,8 +122,15 @@ func (d *decoder) config(root *yaml.Node) *Config {
 }
 
 // links checks every outlet.discharges_into: another tank of the same
-// site, read from files (the InfluxDB scan does not pull a second tank's
-// level yet).
+// site, read the same way (both from files, or both from the site's
+// InfluxDB, whose windows then carry both levels).
+func sourceKind(format string) string {
+	if format == "influx" {
+		return "InfluxDB"
+	}
+	return "files"
+}
+
 func (d *decoder) links(c *Config) {
 	for i, t := range c.Tanks {
 		into := t.Outlet.DischargesInto
@@ -145,8 +152,9 @@ func (d *decoder) links(c *Config) {
 			d.add(path, n, "no tank %q in tanks (a basin that receives the outlet is configured as a tank too)", into)
 		case r.Site != t.Site:
 			d.add(path, n, "tank %q is on site %q, this tank on %q", into, r.Site, t.Site)
-		case t.Source.Format == "influx" || r.Source.Format == "influx":
-			d.add(path, n, "linked tanks must be read from files for now: the InfluxDB scan does not pull the receiving tank's level")
+		case (t.Source.Format == "influx") != (r.Source.Format == "influx"):
+			d.add(path, n, "tank %q is read from %s, this tank from %s: linked tanks are both read from files or both from the site's InfluxDB",
+				into, sourceKind(r.Source.Format), sourceKind(t.Source.Format))
 		}
 	}
 }

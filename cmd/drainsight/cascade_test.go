@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -147,7 +148,7 @@ outputs: {directory: out}
 }
 
 // TestConfigLinks: outlet.discharges_into names another tank of the same
-// site read from files; every other use is refused with its field.
+// site read the same way; every other use is refused with its field.
 func TestConfigLinks(t *testing.T) {
 	tank := func(id, into, format string) string {
 		src := "{format: csv, paths: [x.csv]}"
@@ -166,7 +167,8 @@ func TestConfigLinks(t *testing.T) {
 	}{
 		{"self", "tanks:\n" + tank("A", "A", "csv"), "cannot discharge into itself"},
 		{"unknown", "tanks:\n" + tank("A", "B", "csv"), `no tank "B"`},
-		{"influx", site + "tanks:\n" + tank("A", "B", "csv") + tank("B", "", "influx"), "read from files"},
+		{"files into InfluxDB", site + "tanks:\n" + tank("A", "B", "csv") + tank("B", "", "influx"), "both read from files or both from the site's InfluxDB"},
+		{"InfluxDB into InfluxDB", site + "tanks:\n" + tank("A", "B", "influx") + tank("B", "", "influx"), ""},
 	}
 	for _, c := range cases {
 		dir := t.TempDir()
@@ -175,6 +177,12 @@ func TestConfigLinks(t *testing.T) {
 			t.Fatal(err)
 		}
 		_, _, err := runArgs(t, "check", "--config", path)
+		if c.want == "" {
+			if err != nil && strings.Contains(err.Error(), "discharges_into") {
+				t.Errorf("%s: refused: %v", c.name, err)
+			}
+			continue
+		}
 		if err == nil || !strings.Contains(err.Error(), "plant.yaml:") || !strings.Contains(err.Error(), "outlet.discharges_into") || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("%s: err %v; want an error naming the file, line and outlet.discharges_into with %q", c.name, err, c.want)
 		}
@@ -227,5 +235,88 @@ outputs: {directory: out}
 	}
 	if strings.Count(err.Error(), "tank UP") != 1 {
 		t.Errorf("error names UP %d times: %v", strings.Count(err.Error(), "tank UP"), err)
+	}
+}
+
+// TestInfluxCascadeMatchesFiles: the cascade of TestScanCascade loaded into
+// InfluxDB and scanned from there, window by window, gives the same drains
+// and K as the scan of the same readings from files: the receiving level
+// comes with the discharging tank's samples in each window.
+func TestInfluxCascadeMatchesFiles(t *testing.T) {
+	url, bucket := influxOrSkip(t)
+	const zU = 0.5
+	aU, aL := math.Pi/4*1.2*1.2, math.Pi/4*1.4*1.4
+	kU := 0.61 * math.Pi / 4 * 0.04 * 0.04 * model.Sqrt2g
+	kL := 0.61 * math.Pi / 4 * 0.05 * 0.05 * model.Sqrt2g
+	ts, hu, hl := cascadeHistory(4, aU, aL, kU, kL, zU, rand.New(rand.NewPCG(8, 9)))
+	start := time.Date(2031, 6, 1, 0, 0, 0, 0, time.UTC).UnixNano()
+	for i := range ts {
+		ts[i] += start
+	}
+	l, err := newDemoLoader(url, bucket, "", os.Getenv("DRAINSIGHT_INFLUX_TOKEN"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer l.Close()
+	files := t.TempDir()
+	for id, h := range map[string][]float64{"CASC-UP": hu, "CASC-LO": hl} {
+		if err := l.load(context.Background(), id, ts, h, nil); err != nil {
+			t.Fatal(err)
+		}
+		f, err := os.Create(filepath.Join(files, id+".csv"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := ingest.WriteCSV(f, id, ts, h); err != nil {
+			t.Fatal(err)
+		}
+		f.Close()
+	}
+	tanks := func(src func(id string) string) string {
+		return fmt.Sprintf(`  - id: CASC-UP
+    base_elevation: %g m
+    geometry: {shape: vertical_cylinder, diameter: 1.2 m, height: 2 m}
+    outlet: {diameter: 40 mm, elevation: 0 m, discharges_into: CASC-LO}
+    sensor: {kind: depth, unit: m}
+    source: %s
+  - id: CASC-LO
+    geometry: {shape: vertical_cylinder, diameter: 1.4 m, height: 2.5 m}
+    outlet: {diameter: 50 mm, elevation: 0 m}
+    sensor: {kind: depth, unit: m}
+    source: %s
+outputs: {directory: out}
+`, zU, src("CASC-UP"), src("CASC-LO"))
+	}
+	fileCfg := "tanks:\n" + tanks(func(id string) string { return "{format: csv, paths: [" + id + ".csv]}" })
+	db := t.TempDir()
+	dbCfg := fmt.Sprintf("sites:\n  - id: cascade-yard\n    influx:\n      url: %s\n      bucket: %q\n      token_env: DRAINSIGHT_INFLUX_TOKEN\n      query_window: 6 h\n      settle_delay: 0 s\n", url, bucket) +
+		"tanks:\n" + tanks(func(string) string { return "{format: influx}" })
+	for dir, cfg := range map[string]string{files: fileCfg, db: dbCfg} {
+		path := filepath.Join(dir, "plant.yaml")
+		if err := os.WriteFile(path, []byte(cfg), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		// The first scan of an InfluxDB tank reads 7 days back from --now.
+		args := []string{"scan", "--config", path, "--final", "--now", "2031-06-03T00:00:00Z"}
+		if out, stderr, err := runArgs(t, args...); err != nil {
+			t.Fatalf("scan %s: %v\n%s\n%s", dir, err, out, stderr)
+		}
+	}
+	fe, fk := drainKeys(t, filepath.Join(files, "out", "events.jsonl"))
+	de, dk := drainKeys(t, filepath.Join(db, "out", "events.jsonl"))
+	up := 0
+	for _, k := range fe {
+		if strings.HasPrefix(k, "CASC-UP|") {
+			up++
+		}
+	}
+	if up < 3 {
+		t.Fatalf("only %d drains of CASC-UP from files", up)
+	}
+	if strings.Join(fe, "\n") != strings.Join(de, "\n") {
+		t.Errorf("drains differ: %d from files, %d from InfluxDB\nonly files: %v\nonly db: %v", len(fe), len(de), minus(fe, de), minus(de, fe))
+	}
+	if bad := sameK(fk, dk, 1e-9); len(bad) > 0 {
+		t.Errorf("K differs between files and InfluxDB: %v", bad)
 	}
 }

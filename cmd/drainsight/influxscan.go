@@ -170,6 +170,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		}
 	}()
 	sem := make(chan struct{}, max(1, j.workers))
+	lastRecv := map[string]levelSample{} // each tank's last sample so far, for the tanks discharging into it
 	for pw := range ch {
 		w, wi := pw.w, pw.wi
 		if pw.err != nil {
@@ -183,6 +184,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			cancel()
 			break
 		}
+		linkWindow(tanks, byID, pw.bufs, lastRecv)
 		final := wi == len(windows)-1
 		var wg sync.WaitGroup
 		for _, t := range tanks {
@@ -237,6 +239,49 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		outs = append(outs, t.out)
 	}
 	return outs
+}
+
+// levelSample is one reading of a tank's level above its bottom.
+type levelSample struct {
+	tNs    int64
+	levelM float64
+}
+
+// linkWindow gives every tank of the window whose outlet discharges into
+// another tank of the site that tank's level above the outlet
+// (Series.SubmergedM), interpolated from its samples of the same window and
+// the last one before it (lastRecv, updated here).
+func linkWindow(tanks []*influxTank, byID map[string]*influxTank, bufs map[string]*model.Series, lastRecv map[string]levelSample) {
+	for _, t := range tanks {
+		into := t.p.cfg.Outlet.DischargesInto
+		buf := bufs[t.p.cfg.ID]
+		if t.failed || into == "" || buf == nil {
+			continue
+		}
+		rt := byID[into]
+		if rt == nil {
+			t.out.err, t.failed = fmt.Errorf("the level of %s, which the outlet discharges into, is not read in this pass", into), true
+			continue
+		}
+		lv := model.ReceivingLevel{MaxGapNs: int64(receiverMaxGap),
+			OutletAboveM: t.p.cfg.BaseElevationM + t.p.cfg.Outlet.ElevationM - rt.p.cfg.BaseElevationM}
+		if last, ok := lastRecv[into]; ok {
+			lv.TimeNs, lv.LevelM = append(lv.TimeNs, last.tNs), append(lv.LevelM, last.levelM)
+		}
+		if rb := bufs[into]; rb != nil {
+			for i, tn := range rb.TimeNs {
+				lv.TimeNs = append(lv.TimeNs, tn)
+				lv.LevelM = append(lv.LevelM, rb.HeadM[i]+rt.p.conv.OutletElevM)
+			}
+		}
+		buf.SubmergedM = lv.At(buf.TimeNs)
+	}
+	for id, b := range bufs {
+		if t := byID[id]; t != nil && b.Len() > 0 {
+			n := b.Len() - 1
+			lastRecv[id] = levelSample{b.TimeNs[n], b.HeadM[n] + t.p.conv.OutletElevM}
+		}
+	}
 }
 
 // writeFindings writes the tank's active findings back (tags tank, site,

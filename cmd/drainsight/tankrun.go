@@ -6,6 +6,7 @@ import (
 	"encoding/gob"
 	"fmt"
 	"log/slog"
+	"math"
 	"os"
 	"path/filepath"
 	"slices"
@@ -68,8 +69,9 @@ type tankRun struct {
 	fitErr   int
 	fitErrBy map[model.FitFailure]int // fitErr by reason
 	drains   int
-	// recv is the level of the tank the outlet discharges into; nil for a
-	// free outlet.
+	// recv is the level of the tank the outlet discharges into, read from
+	// its files; nil for a free outlet and for InfluxDB (whose windows
+	// carry it in Series.SubmergedM).
 	recv *model.ReceivingLevel
 	// complete is set before the pass's final commit when the tank's
 	// history is known to be complete (scan --final, or --now past its
@@ -232,6 +234,9 @@ func (r *tankRun) feed(s *model.Series) {
 		if s.InflowM3s != nil {
 			part.InflowM3s = s.InflowM3s[i:j]
 		}
+		if s.SubmergedM != nil {
+			part.SubmergedM = s.SubmergedM[i:j]
+		}
 		r.push(part)
 		i = j
 	}
@@ -247,10 +252,23 @@ func (r *tankRun) push(s *model.Series) {
 	r.total += int64(s.Len())
 	r.lastNs = s.TimeNs[s.Len()-1]
 	r.det.AddSeries(s, r.p.detOpt)
-	if r.recv != nil {
-		r.seg.PushSubmerged(s.TimeNs, s.HeadM, s.InflowM3s, r.recv.At(s.TimeNs))
-	} else {
+	if r.p.cfg.Outlet.DischargesInto == "" {
 		r.seg.Push(s.TimeNs, s.HeadM, s.InflowM3s)
+	} else {
+		// The receiving level comes with the samples (InfluxDB: pulled in
+		// the same window) or from the receiving tank's files; where it is
+		// not known it is NaN, never a free outlet.
+		sub := s.SubmergedM
+		if sub == nil && r.recv != nil {
+			sub = r.recv.At(s.TimeNs)
+		}
+		if sub == nil {
+			sub = make([]float64, s.Len())
+			for i := range sub {
+				sub[i] = math.NaN()
+			}
+		}
+		r.seg.PushSubmerged(s.TimeNs, s.HeadM, s.InflowM3s, sub)
 	}
 	r.fitSegments(r.seg.Take())
 	r.takeFalls()
