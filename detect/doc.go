@@ -78,11 +78,25 @@
 // after the first finding). Onset and its interval come from the chosen
 // model's profile (drop of 1.92 log-likelihood units). A K rise is a tank_leak when
 // the idle periods since the onset show a combined leak score above 3 (or the
-// leak chart signals), else excess_outflow. A leak-chart signal on its own is a
-// tank_leak when the idle fall rate scales like head^0.5; when the rate does
-// not depend on head (exponent within 2 SE of 0 and more than 3 SE from 0.5,
-// over heads spanning at least 1.5×) it is sensor drift. Magnitude is in
-// percent of the baseline K.
+// leak chart signals), else excess_outflow. A level falling while the
+// outlet is shut is a leak or a falling sensor drift, and the first finding
+// waits until the evidence tells which (leakOrDrift): after the first
+// clearly falling idle period of the episode (since the leak CUSUM last
+// rose from zero), a drift moves the empty-tank reading of complete drains
+// at the idle fall rate and a leak leaves it unchanged; their log-likelihood
+// ratio (empty readings' scatter from the last baseline ones, floored at
+// 0.5 mm; the drift's start profiled over the episode's idle starts)
+// decides at ±ln 100. Without complete drains the head decides, over at
+// least 6 falling idle periods spanning 1.5× in head: a fall rate growing
+// with the head (exponent above 0.25 and 5 SE) is a leak, one that does not
+// (within 2 SE of 0, SE at most 0.05, more than 3 SE from 0.5) a drift.
+// Until one of them decides, a leak-chart signal or a K rise with falling
+// idle periods is withheld, for at most 7 days; then it is reported as a
+// tank_leak saying it was not told from drift. A drift so told is
+// sensor_fault/drift and withholds the outlet findings. A drain fit with K
+// below 5 % of the reference is a fall through a leak with the outlet shut:
+// it enters neither the outlet charts nor the sensor records and feeds the
+// leak chart as an idle period. Magnitude is in percent of the baseline K.
 //
 // Forecast. For a restriction the Theil-Sen line of ln K against days after
 // the onset is projected to MaintenanceFraction (0.8) × baseline K; DateLo and
@@ -176,7 +190,10 @@
 // 2-12 h, noise ×2-×5) fed as drain fits, idle fits and raw samples, and
 // reports detection, delay and the share never reported as an outlet fault
 // (100 % in every cell at 200 tanks: drift found in a median 152, 80 and 58 h,
-// stuck in 0.7 h, noise in 30-33 h); FormatSensorStudyTable renders it. Run
-// the full studies with go test ./detect -run 'StudySmall|StudySensor' -v
-// -args -study.
+// stuck in 0.7 h, noise in 30-33 h); FormatSensorStudyTable renders it.
+// StudyLeakDrift measures the kind of the first finding on tank leaks of
+// 5-80 mm/h at top fill (opening above and below the outlet) and drifts of
+// ±5-40 mm/day (FormatKindStudyTable; figures in DEVELOPERS.md). Run the
+// full studies with go test ./detect -run
+// 'StudySmall|StudySensor|StudyLeakDrift' -v -args -study.
 package detect

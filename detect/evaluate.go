@@ -100,7 +100,9 @@ func (s *State) Evaluate(now time.Time, opt Options) []Finding {
 	if len(out) > 0 {
 		return out
 	}
-	return outlet
+	// A drift told from the idle falls is a sensor fault too: it withholds
+	// the outlet findings.
+	return sensorOnly(outlet)
 }
 
 // outletFindings runs the CUSUM, EWMA and leak charts and classifies.
@@ -163,15 +165,34 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 				swk += w * ip.LeakK
 			}
 		}
-		if zl := swk / math.Sqrt(sw); sw > 0 && zl > 3 {
+		zl := swk / math.Sqrt(sw)
+		v, why := verdictUndecided, ""
+		if sw > 0 && zl > 3 {
+			v, why, _ = s.leakOrDrift(opt)
+			// Undecided: the idle falls are not yet told from a drift and
+			// the finding is withheld.
+			if v == verdictDrift {
+				if leakDrift == nil {
+					d := Finding{Tank: s.Tank, DetectedAt: now, Kind: KindSensorFault, Subtype: SubDrift, Statistic: "idle_fall_score",
+						Value: zl, Threshold: 3, PValue: math.NaN(), FalseAlarmYears: opt.FalseAlarmYears,
+						Evidence: "level falls while shut, but " + why + ": sensor drift, not a leak"}
+					leakDrift = &d
+				}
+			}
+		}
+		switch {
+		case sw > 0 && zl > 3 && v != verdictLeak:
+			// withheld (undecided) or a drift, reported as such below
+		case sw > 0 && zl > 3:
 			f.Kind = KindTankLeak
 			f.MagnitudePct = 100 * swk / sw / s.Ref.KM25s
 			f.Evidence = fmt.Sprintf("level falls while shut since %s: leak constant %.3g m^2.5/s (%.1f %% of the outlet K, combined score %.1f > 3); drains show K up (%s %.2f > %.2f)",
-				f.OnsetLo.Format("2006-01-02"), swk/sw, f.MagnitudePct, zl, f.Statistic, f.Value, f.Threshold)
-		} else {
+				f.OnsetLo.Format("2006-01-02"), swk/sw, f.MagnitudePct, zl, f.Statistic, f.Value, f.Threshold) + "; " + why
+			out = append(out, f)
+		default:
 			f.Evidence += "; idle periods show no leak, so the outlet passes more than its baseline"
+			out = append(out, f)
 		}
-		out = append(out, f)
 	}
 	if leak != nil {
 		out = append(out, *leak)
@@ -344,9 +365,12 @@ func (s *State) forecast(current float64, ts TheilSenResult, trending bool, now 
 	return fc
 }
 
-// leakFinding runs the idle leak CUSUM. A signal whose idle falls scale with
-// sqrt(head) is a tank_leak; one whose fall rate does not depend on head is
-// reported as sensor drift instead (second return).
+// leakFinding runs the idle leak CUSUM. A signal is a tank_leak when
+// leakOrDrift finds a leak (the empty reading unchanged, or a fall rate
+// growing with the head) and sensor drift (second return) when it finds a
+// drift; until it decides the signal is withheld, for at most
+// leakUndecidedMax after the first falling idle period, then reported as a
+// leak with the evidence saying it was not told from drift.
 func (s *State) leakFinding(now time.Time, opt Options) (leak, drift *Finding) {
 	if s.LeakN == 0 {
 		return nil, nil
@@ -381,17 +405,21 @@ func (s *State) leakFinding(now time.Time, opt Options) (leak, drift *Finding) {
 	if s.Ref.Set && s.Ref.KM25s > 0 {
 		f.MagnitudePct = 100 * meanLeak / s.Ref.KM25s
 	}
-	exp, expSE, ok := slopeOLS(lh, lr)
-	if ok && len(lh) >= 3 && math.Abs(exp-0.5) > 3*expSE && math.Abs(exp) < 2*expSE {
+	v, why, from := s.leakOrDrift(opt)
+	switch v {
+	case verdictDrift:
 		f.Kind, f.Subtype = KindSensorFault, SubDrift
-		f.Evidence = fmt.Sprintf("level falls while shut at a rate that does not follow sqrt(head) (rate ∝ head^%.2f ± %.2f over %d idle periods, a leak gives 0.5): sensor drift, not a leak", exp, expSE, len(lh))
+		f.Evidence = "level falls while shut, but " + why + ": sensor drift, not a leak"
 		return nil, &f
+	case verdictUndecided:
+		if from == 0 || now.UnixNano()-from < int64(leakUndecidedMax) {
+			return nil, nil // withheld until the evidence tells leak from drift
+		}
 	}
-	f.Evidence = fmt.Sprintf("level falls while shut: leak constant %.3g m^2.5/s (%.1f %% of the outlet K) over the last idle periods, leak CUSUM %.1f > %.1f", meanLeak, f.MagnitudePct, s.LeakCUSUM, h)
-	if ok && len(lh) >= 3 {
-		f.Evidence += fmt.Sprintf("; fall rate ∝ head^%.2f ± %.2f, consistent with sqrt(head)", exp, expSE)
-	} else {
-		f.Evidence += "; heads too similar to check the sqrt(head) law"
+	f.Evidence = fmt.Sprintf("level falls while shut: leak constant %.3g m^2.5/s (%.1f %% of the outlet K) over the last idle periods, leak CUSUM %.1f > %.1f; %s",
+		meanLeak, f.MagnitudePct, s.LeakCUSUM, h, why)
+	if exp, expSE, ok := slopeOLS(lh, lr); ok {
+		f.Evidence += fmt.Sprintf("; fall rate ∝ head^%.2f ± %.2f (sqrt(h - z) for an opening at z: 0.5 at the outlet, more above it, less below it)", exp, expSE)
 	}
 	return &f, nil
 }

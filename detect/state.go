@@ -52,6 +52,9 @@ type State struct {
 	Idle      []IdlePoint `json:"idle"`
 	LeakCUSUM float64     `json:"leak_cusum"` // one-sided upper CUSUM on leak scores
 	LeakN     int         `json:"leak_n"`
+	// LeakFromNs is the start of the idle period at which the leak CUSUM
+	// last rose from zero: the earliest the current fall can have begun.
+	LeakFromNs int64 `json:"leak_from_ns,omitempty"`
 
 	Sensor SensorState `json:"sensor"`
 
@@ -109,10 +112,12 @@ type Point struct {
 	HMidM float64 `json:"h_mid_m,omitempty"`
 }
 
-// IdlePoint is one idle period: leak constant and its standard error, the
+// IdlePoint is one idle period (end TimeNs, start StartNs; 0 in states
+// written before it was kept): leak constant and its standard error, the
 // mean head, the mean rate and its standard error.
 type IdlePoint struct {
 	TimeNs    int64   `json:"t"`
+	StartNs   int64   `json:"t0,omitempty"`
 	LeakK     float64 `json:"leak_k"`
 	LeakKSE   float64 `json:"leak_k_se"`
 	MeanHeadM float64 `json:"head_m"`
@@ -176,13 +181,27 @@ func appendCapped[T any](s []T, v T, limit int) []T {
 // not after the last one seen is ignored (so re-reading a window is
 // harmless), as is one ending before the current epoch. Fits graded below
 // opt.MinQuality, or with a non-positive or non-finite K, do not enter the
-// outlet statistics but still feed the sensor checks.
+// outlet statistics but still feed the sensor checks. A fit whose K is below
+// 5 % of the reference (leakOnlyFraction) is a fall through a leak with the
+// outlet shut: it enters neither the outlet charts nor the sensor checks and
+// feeds the leak chart as an idle period (leak constant K, rate from its
+// heads and span).
 func (s *State) AddFit(f model.Fit, opt Options) {
 	opt = opt.withDefaults()
 	if f.EndNs <= s.LastFitNs || f.EndNs < s.EpochNs {
 		return
 	}
 	s.LastFitNs = f.EndNs
+	if s.leakOnlyFall(f.KM25s) && f.KSEM25s > 0 && f.EndNs > f.StartNs {
+		// A fall far slower than the outlet allows: the outlet was shut and
+		// a leak drained the tank. It is an idle period for the leak chart,
+		// not a drain, and its end is no empty-tank reading.
+		span := float64(f.EndNs-f.StartNs) / 1e9
+		rate := (f.H1M - f.H0M) / span
+		s.addIdlePoint(IdlePoint{TimeNs: f.EndNs, StartNs: f.StartNs, LeakK: f.KM25s, LeakKSE: f.KSEM25s,
+			MeanHeadM: 0.5 * (f.H0M + f.H1M), RateMs: rate, RateSEMs: math.Abs(rate) * f.KSEM25s / f.KM25s})
+		return
+	}
 	switch {
 	case f.Quality == model.QualityA:
 		s.Sensor.Recs = appendCapped(s.Sensor.Recs, SensorRec{
@@ -401,12 +420,24 @@ func (s *State) AddIdle(f model.IdleFit, _ Options) {
 	if !(f.LeakKSEM25s > 0) || math.IsNaN(f.LeakKM25s) {
 		return
 	}
-	s.IdleTimesNs = appendCapped(s.IdleTimesNs, f.EndNs, maxFreq)
-	s.Idle = appendCapped(s.Idle, IdlePoint{
-		TimeNs: f.EndNs, LeakK: f.LeakKM25s, LeakKSE: f.LeakKSEM25s, MeanHeadM: f.MeanHeadM, RateMs: f.RateMs, RateSEMs: f.RateSEMs,
-	}, maxIdle)
-	z := math.Max(-zClip, math.Min(zClip, f.LeakKM25s/f.LeakKSEM25s))
+	s.addIdlePoint(IdlePoint{
+		TimeNs: f.EndNs, StartNs: f.StartNs, LeakK: f.LeakKM25s, LeakKSE: f.LeakKSEM25s, MeanHeadM: f.MeanHeadM, RateMs: f.RateMs, RateSEMs: f.RateSEMs,
+	})
+}
+
+// addIdlePoint feeds one idle period (or a leak-only fall) to the leak chart.
+func (s *State) addIdlePoint(ip IdlePoint) {
+	s.IdleTimesNs = appendCapped(s.IdleTimesNs, ip.TimeNs, maxFreq)
+	s.Idle = appendCapped(s.Idle, ip, maxIdle)
+	z := math.Max(-zClip, math.Min(zClip, ip.LeakK/ip.LeakKSE))
+	prev := s.LeakCUSUM
 	s.LeakCUSUM = math.Max(0, s.LeakCUSUM+z-leakK)
+	if prev == 0 && s.LeakCUSUM > 0 {
+		s.LeakFromNs = ip.StartNs
+		if s.LeakFromNs == 0 {
+			s.LeakFromNs = ip.TimeNs
+		}
+	}
 	s.LeakN++
 }
 

@@ -1,0 +1,129 @@
+package detect
+
+import (
+	"flag"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"testing"
+	"time"
+
+	"drainsight/model"
+	"drainsight/model/sim"
+)
+
+var dumpLeak = flag.Bool("dumpleak", false, "log a day of segments and readings of the 80 mm/h leak below the outlet")
+
+// TestLeakFallsThroughSegmenter measures (issue 9 item 4) what the real
+// segmenter makes of a leaking tank's falls while the outlet is shut: a
+// simulated vertical tank (2 m², filled to 3 m, outlet 0.4 m above the
+// bottom, K = 1e-3 m^2.5/s, 2 drains a day, 30 % stopped half way, 10 s at
+// 1 mm), healthy for 10 days and leaking 5, 20 or 80 mm/h at top fill
+// through an opening 0.5 m above, at, or 0.3 m below the outlet for the
+// next 10. It logs the falls not emitted as drains, the idle hours before
+// and after the onset, and fails if a drain segment lies outside every
+// true drain (a shut fall cut as a drain).
+func TestLeakFallsThroughSegmenter(t *testing.T) {
+	if testing.Short() {
+		t.Skip("simulates 9 tanks for 20 days")
+	}
+	from := time.Date(2030, 1, 1, 0, 0, 0, 0, time.UTC)
+	const areaM2, topM, kOut = 2.0, 3.0, 1e-3
+	tk := model.Tank{ID: "e2e", Shape: model.VerticalCylinder{DiameterM: math.Sqrt(4 * areaM2 / math.Pi), InternalHeightM: 3.6}, OutletElevM: 0.4, DatumKnown: true}
+	for _, z := range []float64{0.5, 0, -0.3} {
+		for _, mmh := range []float64{5, 20, 80} {
+			kl := mmh / 3.6e6 * areaM2 / math.Sqrt(topM-z)
+			onset := from.Add(10 * 24 * time.Hour)
+			spec := sim.TankSpec{Tank: tk, KM25s: kOut, SampleEvery: 10 * time.Second, NoiseM: 0.001, FillToM: topM,
+				DrainsPerDay: 2, PartialDrainShare: 0.3, FillRateM3s: 2e-3,
+				Faults: []sim.Fault{{Kind: sim.TankLeak, Start: onset, Magnitude: kl / kOut, ElevM: z}}}
+			s, tr := sim.Simulate(spec, from, from.Add(20*24*time.Hour), rand.New(rand.NewPCG(3, uint64(mmh))))
+			sg := model.NewSegmenter(&tk, model.SegmentOptions{})
+			sg.Push(s.TimeNs, s.HeadM, nil)
+			segs := append(sg.Take(), sg.Flush()...)
+			falls := sg.TakeFalls()
+			oc := map[string]int{}
+			for _, f := range falls {
+				oc[f.Outcome.String()]++
+				if f.Outcome != model.FallDrain {
+					real := false
+					for _, d := range tr.Drains {
+						if f.StartNs < d.EndNs && f.EndNs > d.StartNs {
+							real = true
+						}
+					}
+					dur := float64(f.EndNs-f.StartNs) / 3600e9
+					t.Logf("  fall %s %s: %.2f h, drop %.3f m (%.1f mm/h), overlaps a true drain %v", f.Outcome, time.Unix(0, f.StartNs).UTC().Format("01-02 15:04"), dur, f.DropM, f.DropM/dur*1e3, real)
+				}
+			}
+			idleN, idleH, idleB := 0, 0.0, 0.0
+			var worst float64
+			for _, g := range segs {
+				if g.Kind == model.Idle {
+					if g.TimeNs[0] >= onset.UnixNano() {
+						idleN++
+						idleH += float64(g.TimeNs[len(g.TimeNs)-1]-g.TimeNs[0]) / 3600e9
+					} else {
+						idleB += float64(g.TimeNs[len(g.TimeNs)-1]-g.TimeNs[0]) / 3600e9
+					}
+					continue
+				}
+				for _, d := range tr.Drains {
+					if g.TimeNs[0] < d.EndNs && g.TimeNs[len(g.TimeNs)-1] > d.StartNs {
+						worst = math.Max(worst, math.Abs(float64(g.TimeNs[0]-d.StartNs))/1e9)
+						worst = math.Max(worst, math.Abs(float64(g.TimeNs[len(g.TimeNs)-1]-d.EndNs))/1e9)
+					}
+				}
+			}
+			t.Logf("falls %v, idle h before onset %.0f, idle segments after onset %d (%.0f h), worst boundary error %.0f s", oc, idleB, idleN, idleH, worst)
+			if *dumpLeak && z == -0.3 && mmh == 80 {
+				for _, g := range segs {
+					if g.TimeNs[0] > onset.UnixNano() && g.TimeNs[0] < onset.UnixNano()+2*86400e9 {
+						t.Logf("  seg %v %s - %s  %.3f -> %.3f complete %v", g.Kind, time.Unix(0, g.TimeNs[0]).UTC().Format("01-02 15:04"), time.Unix(0, g.TimeNs[len(g.TimeNs)-1]).UTC().Format("15:04"), g.HeadM[0], g.HeadM[len(g.HeadM)-1], g.Complete)
+					}
+				}
+				for _, d := range tr.Drains {
+					if d.StartNs > onset.UnixNano() && d.StartNs < onset.UnixNano()+2*86400e9 {
+						t.Logf("  true drain %s - %s %.3f -> %.3f", time.Unix(0, d.StartNs).UTC().Format("01-02 15:04"), time.Unix(0, d.EndNs).UTC().Format("15:04"), d.H0M, d.H1M)
+					}
+				}
+				for i := range s.TimeNs {
+					if s.TimeNs[i] > onset.UnixNano() && s.TimeNs[i] < onset.UnixNano()+2*86400e9 && i%180 == 0 {
+						t.Logf("   %s %.3f", time.Unix(0, s.TimeNs[i]).UTC().Format("01-02 15:04"), s.HeadM[i])
+					}
+				}
+			}
+			extra := 0
+			for _, g := range segs {
+				if g.Kind != model.Drain {
+					continue
+				}
+				a, b := g.TimeNs[0], g.TimeNs[len(g.TimeNs)-1]
+				real := false
+				for _, d := range tr.Drains {
+					if a < d.EndNs && b > d.StartNs {
+						real = true
+					}
+				}
+				if real {
+					continue
+				}
+				extra++
+				f, err := model.FitDrain(&tk, &g, model.FitOptions{})
+				dur := float64(b-a) / 3600e9
+				drop := g.HeadM[0] - g.HeadM[len(g.HeadM)-1]
+				msg := fmt.Sprintf("z %+.1f %2.0f mm/h: fall %s %.2f h drop %.3f m from %.2f m, rate %.1f mm/h", z, mmh, time.Unix(0, a).UTC().Format("01-02 15:04"), dur, drop, g.HeadM[0], drop/dur*1e3)
+				if err == nil {
+					msg += fmt.Sprintf(", K %.3g (%.2f %% of outlet K, leak K %.2f %%), grade %s complete %v", f.KM25s, 100*f.KM25s/kOut, 100*kl/kOut, f.Quality, f.Complete)
+				} else {
+					msg += " fit: " + err.Error()
+				}
+				t.Log(msg)
+			}
+			t.Logf("z %+.1f %2.0f mm/h: %d drains true, %d drain segments not a true drain", z, mmh, len(tr.Drains), extra)
+			if extra > 0 {
+				t.Errorf("opening at %+.1f m, %.0f mm/h: %d shut falls cut as drains", z, mmh, extra)
+			}
+		}
+	}
+}
