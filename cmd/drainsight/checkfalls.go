@@ -41,7 +41,7 @@ func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
 		}
 		opt := ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field,
 			TankTag: src.TankTag, InflowField: inflowField}
-		seg := model.NewSegmenter(&p.tank, p.segOpt)
+		seg := model.NewSegmenter(&p.Tank, p.Segment)
 		cctx, cancel := context.WithCancel(ctx)
 		first := int64(0)
 		_, err = ingest.StreamSeries(cctx, src.Paths, format, opt, map[string]ingest.Conversion{p.cfg.ID: p.conv}, fileChunk, func(c *model.Series) {
@@ -95,7 +95,7 @@ func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
 		fmt.Fprintf(w, "warning: tank %s: the settings reject all %d falls in the first %.0f days of data (%s); "+
 			"the longest lasted %s and the largest fell %.3f m (detection.min_drain_duration %s, detection.min_drop %.3f m)\n",
 			p.cfg.ID, st.Falls, checkSample.Hours()/24, strings.Join(why, ", "), longest.Round(time.Second), largest,
-			minDuration(p.segOpt), p.segOpt.MinDropM)
+			minDuration(p.Segment), p.Segment.MinDropM)
 	}
 }
 

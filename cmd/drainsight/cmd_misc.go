@@ -65,7 +65,7 @@ func runCheck(ctx context.Context, e *env, args []string) error {
 				problems = append(problems, fmt.Errorf("tank %s: source.paths %q match no file", p.cfg.ID, src.Paths))
 			}
 		}
-		fmt.Fprintf(tw, "%s\t%s\t0-%.3g m\t%s %s\t%s\t%s\n", p.cfg.ID, p.cfg.Geometry.Shape, p.tank.DrainableHeightM(),
+		fmt.Fprintf(tw, "%s\t%s\t0-%.3g m\t%s %s\t%s\t%s\n", p.cfg.ID, p.cfg.Geometry.Shape, p.Tank.DrainableHeightM(),
 			p.cfg.Sensor.Kind, p.cfg.Sensor.Unit, src.Format, read)
 	}
 	tw.Flush()

@@ -16,6 +16,7 @@ import (
 	"drainsight/alert/report"
 	"drainsight/config"
 	"drainsight/detect"
+	"drainsight/scan"
 	"drainsight/store"
 )
 
@@ -118,9 +119,9 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 		if err != nil {
 			return in, err
 		}
-		var saved savedState
+		var saved scan.SavedState
 		if len(blob) > 0 {
-			if err := decodeState(blob, &saved); err != nil {
+			if err := scan.DecodeState(blob, &saved); err != nil {
 				return in, fmt.Errorf("tank %s: stored detector state: %w", id, err)
 			}
 		}
@@ -156,7 +157,7 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 		}
 		for _, ar := range recs {
 			var r alert.Record
-			if err := decodeGob(ar.Data, &r); err != nil {
+			if err := scan.DecodeGob(ar.Data, &r); err != nil {
 				return in, fmt.Errorf("tank %s: stored alert: %w", id, err)
 			}
 			if r.Status != alert.StatusCleared {
@@ -174,7 +175,7 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 	ranks := make([]detect.FleetRank, len(states))
 	pvals := make([]float64, len(states))
 	for i, st := range states {
-		ranks[i] = detect.RankFleet([]*detect.State{st}, now, plans[i].detOpt, in.FDR)[0]
+		ranks[i] = detect.RankFleet([]*detect.State{st}, now, plans[i].Detect, in.FDR)[0]
 		pvals[i] = ranks[i].PValue
 	}
 	q, watch := detect.BenjaminiHochberg(pvals, in.FDR)

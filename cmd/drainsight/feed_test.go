@@ -48,7 +48,7 @@ tanks:
 	}
 	lag := map[string]time.Duration{}
 	for _, p := range plans {
-		lag[p.cfg.ID] = p.detOpt.ReadLag
+		lag[p.cfg.ID] = p.Detect.ReadLag
 	}
 	if lag["IX"] != 30*time.Minute || lag["FILE"] != 0 {
 		t.Fatalf("read lag %v, want IX 30 min (the settle delay) and FILE 0", lag)
@@ -59,11 +59,11 @@ tanks:
 	for ts := now.Add(-6 * time.Hour); ts.Before(now.Add(-30 * time.Minute)); ts = ts.Add(10 * time.Second) {
 		ser.Append(ts.UnixNano(), 1+1e-4*float64(ts.Unix()%7))
 	}
-	det.AddSeries(ser, plans[0].detOpt)
-	if fs := det.Feed(now, plans[0].detOpt); fs.State != detect.FeedOK {
+	det.AddSeries(ser, plans[0].Detect)
+	if fs := det.Feed(now, plans[0].Detect); fs.State != detect.FeedOK {
 		t.Errorf("feed read to now-30 min, with the read lag: %s, want ok", fs.State)
 	}
-	if fs := det.Feed(now, plans[1].detOpt); fs.State != detect.FeedGap {
+	if fs := det.Feed(now, plans[1].Detect); fs.State != detect.FeedGap {
 		t.Errorf("the same feed without a read lag: %s, want gap (the test must be able to tell)", fs.State)
 	}
 }

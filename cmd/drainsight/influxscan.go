@@ -11,6 +11,7 @@ import (
 	"drainsight/detect"
 	"drainsight/ingest/influx"
 	"drainsight/model"
+	"drainsight/scan"
 )
 
 // firstScanHistory is how far back a tank's first scan reads when it has no
@@ -20,7 +21,7 @@ const firstScanHistory = 7 * 24 * time.Hour
 // influxTank is one InfluxDB tank during a pass.
 type influxTank struct {
 	p      *plan
-	run    *tankRun
+	run    *scan.Run
 	lastNs int64 // newest sample pulled (the pull goroutine's own)
 	// inflowM3s is the meter's last reading (NaN before the first).
 	inflowM3s float64
@@ -99,18 +100,18 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	startNs := int64(math.MaxInt64)
 	var ids []string
 	for _, p := range plans {
-		run, from, err := openTankRun(j.st, p, j.log)
+		run, from, err := scan.Open(j.st, &p.Plan, j.log)
 		t := &influxTank{p: p, run: run, out: tankOutcome{tank: p.cfg.ID}, inflowM3s: math.NaN()}
 		switch {
 		case err != nil:
 			t.out.err, t.failed = err, true
-		case !run.hadCP && opt.sinceNs != 0:
+		case !run.HadCheckpoint && opt.sinceNs != 0:
 			from = opt.sinceNs
-		case !run.hadCP:
+		case !run.HadCheckpoint:
 			from = now.Add(-firstScanHistory).UnixNano()
 		}
 		if !t.failed {
-			run.fromNs, run.limitNs = from, now.UnixNano()
+			run.FromNs, run.LimitNs = from, now.UnixNano()
 			startNs = min(startNs, from)
 			ids = append(ids, p.cfg.ID)
 			byID[p.cfg.ID] = t
@@ -197,9 +198,9 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				defer wg.Done()
 				defer func() { <-sem }()
 				if buf != nil {
-					t.run.feed(buf)
+					t.run.Feed(buf)
 				}
-				fits, err := t.run.commit(final, now.UnixNano())
+				fits, err := t.run.Commit(final, now.UnixNano())
 				if err != nil {
 					t.out.err, t.failed = err, true
 					return
@@ -220,20 +221,20 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	outs := make([]tankOutcome, 0, len(tanks))
 	for _, t := range tanks {
 		if t.run != nil {
-			t.out.samples, t.out.drains, t.out.reset = t.run.total, t.run.drains, t.run.maintChanged
-			t.out.seg, t.out.falls, t.out.fitFailed, t.out.fitFailedBy = t.run.seg.Stats(), t.run.falls, t.run.fitErr, t.run.fitErrBy
+			t.out.samples, t.out.drains, t.out.reset = t.run.Total, t.run.Drains, t.run.MaintChanged
+			t.out.seg, t.out.falls, t.out.fitFailed, t.out.fitFailedBy = t.run.Seg.Stats(), t.run.Falls, t.run.FitErr, t.run.FitErrBy
 		}
 		if t.run != nil && t.out.err != nil {
-			t.out.evals = t.run.evals // evaluated before the failure
+			t.out.evals = t.run.Evals // evaluated before the failure
 		}
 		if t.out.err == nil && t.run != nil {
-			t.out.evals = append(t.run.evals, evaluate(t.run.det, now, t.p.detOpt))
-			t.out.gaps = t.run.det.GapsBetween(time.Unix(0, t.run.prevEvalNs), now)
-			if ev := t.out.evals[len(t.out.evals)-1]; !ev.withheld {
+			t.out.evals = append(t.run.Evals, scan.Evaluate(t.run.Det, now, t.p.Detect))
+			t.out.gaps = t.run.Det.GapsBetween(time.Unix(0, t.run.PrevEvalNs), now)
+			if ev := t.out.evals[len(t.out.evals)-1]; !ev.Withheld {
 				// While the data are missing the findings are withheld:
 				// what was written before stands, and a feed notice is the
 				// data path's condition, not an outlet finding.
-				j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.det, ev.findings)
+				j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.Det, ev.Findings)
 			}
 		}
 		outs = append(outs, t.out)

@@ -19,6 +19,7 @@ import (
 	"drainsight/ingest"
 	"drainsight/ingest/influx"
 	"drainsight/model"
+	"drainsight/scan"
 	"drainsight/store"
 )
 
@@ -112,7 +113,7 @@ type scanOptions struct {
 type tankOutcome struct {
 	tank    string
 	fits    []model.Fit
-	evals   []evaluation // in time order; the last one is at the scan's now
+	evals   []scan.Evaluation // in time order; the last one is at the scan's now
 	samples int64
 	drains  int
 	err     error
@@ -184,44 +185,7 @@ func (o *tankOutcome) feed() (detect.FeedStatus, bool) {
 	if len(o.evals) == 0 {
 		return detect.FeedStatus{}, false
 	}
-	return o.evals[len(o.evals)-1].feed, true
-}
-
-// evaluation is one tank's active findings at one time.
-type evaluation struct {
-	at       time.Time
-	findings []detect.Finding
-	feed     detect.FeedStatus
-	// withheld: the tank's data were missing at this time, so only its
-	// feed was evaluated (findings holds the feed notice, if one is due)
-	// and its other findings are kept as they were.
-	withheld bool
-}
-
-// evaluate is one tank's evaluation at at: its active findings or, while
-// its data are missing, only its feed notice (detect.FeedStatus.Notice).
-func evaluate(det *detect.State, at time.Time, opt detect.Options) evaluation {
-	fs := det.Feed(at, opt)
-	ev := evaluation{at: at, feed: fs}
-	if fs.Withholds() {
-		ev.withheld = true
-		if n, ok := fs.Notice(); ok {
-			ev.findings = []detect.Finding{n}
-		}
-		return ev
-	}
-	ev.findings = det.Evaluate(at, opt)
-	return ev
-}
-
-// evalEvery is how often a pass evaluates the statistics while it replays
-// history (at UTC midnights), so that faults that came and went between two
-// passes (a stuck sensor, a data gap) are reported with their times.
-const evalEvery = 24 * time.Hour
-
-// nextEval returns the first evaluation instant after tNs.
-func nextEval(tNs int64) int64 {
-	return (tNs/int64(evalEvery) + 1) * int64(evalEvery)
+	return o.evals[len(o.evals)-1].Feed, true
 }
 
 // scanResult is what one pass of the job gave.
@@ -324,21 +288,22 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 
 // fileTank is one file tank during a pass.
 type fileTank struct {
-	run *tankRun
+	p   *plan
+	run *scan.Run
 	out tankOutcome
 }
 
 // pastSettle reports whether now is past the tank's last sample of this
 // pass by more than its settle delay (no sample: false).
 func (f *fileTank) pastSettle(now time.Time) bool {
-	if f.run == nil || f.run.total == 0 {
+	if f.run == nil || f.run.Total == 0 {
 		return false
 	}
-	settle := f.run.p.segOpt.Settle
+	settle := f.run.P.Segment.Settle
 	if settle == 0 {
 		settle = model.DefaultSettle
 	}
-	return now.UnixNano()-f.run.lastNs > int64(max(settle, 0))
+	return now.UnixNano()-f.run.LastNs > int64(max(settle, 0))
 }
 
 // finish commits the tank (unless it failed) and evaluates it at now; with
@@ -348,13 +313,13 @@ func (f *fileTank) finish(now time.Time, complete bool) tankOutcome {
 	if o.err != nil || f.run == nil {
 		return o
 	}
-	f.run.complete = complete
-	o.fits, o.err = f.run.commit(true, now.UnixNano())
-	o.samples, o.drains, o.reset = f.run.total, f.run.drains, f.run.maintChanged
-	o.seg, o.falls, o.fitFailed, o.fitFailedBy = f.run.seg.Stats(), f.run.falls, f.run.fitErr, f.run.fitErrBy
+	f.run.Complete = complete
+	o.fits, o.err = f.run.Commit(true, now.UnixNano())
+	o.samples, o.drains, o.reset = f.run.Total, f.run.Drains, f.run.MaintChanged
+	o.seg, o.falls, o.fitFailed, o.fitFailedBy = f.run.Seg.Stats(), f.run.Falls, f.run.FitErr, f.run.FitErrBy
 	if o.err == nil {
-		o.evals = append(f.run.evals, evaluate(f.run.det, now, f.run.p.detOpt))
-		o.gaps = f.run.det.GapsBetween(time.Unix(0, f.run.prevEvalNs), now)
+		o.evals = append(f.run.Evals, scan.Evaluate(f.run.Det, now, f.run.P.Detect))
+		o.gaps = f.run.Det.GapsBetween(time.Unix(0, f.run.PrevEvalNs), now)
 	}
 	return o
 }
@@ -383,14 +348,14 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 		limit = now.UnixNano()
 	}
 	for _, p := range plans {
-		ft := &fileTank{out: tankOutcome{tank: p.cfg.ID}}
+		ft := &fileTank{p: p, out: tankOutcome{tank: p.cfg.ID}}
 		all = append(all, ft)
-		run, from, err := openTankRun(j.st, p, j.log)
+		run, from, err := scan.Open(j.st, &p.Plan, j.log)
 		if err != nil {
 			ft.out.err = err
 			continue
 		}
-		run.fromNs, run.limitNs = from, limit
+		run.FromNs, run.LimitNs = from, limit
 		ft.run = run
 		s := p.cfg.Source
 		inflowField := ""
@@ -429,7 +394,7 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 						newest = max(newest, c.TimeNs[n-1])
 					}
 					if ft := byID[c.Tank]; ft != nil {
-						ft.run.feed(c)
+						ft.run.Feed(c)
 					}
 				})
 				rep.Merge(r)
@@ -456,10 +421,10 @@ func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) {
 	levels := map[string]*model.ReceivingLevel{}
 	failed := map[string]error{}
 	for _, ft := range tanks {
-		if ft.run == nil || ft.run.p.cfg.Outlet.DischargesInto == "" {
+		if ft.run == nil || ft.p.cfg.Outlet.DischargesInto == "" {
 			continue
 		}
-		a := ft.run.p.cfg
+		a := ft.p.cfg
 		var rp *plan
 		for _, p := range j.plans {
 			if p.cfg.ID == a.Outlet.DischargesInto {
@@ -484,7 +449,7 @@ func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) {
 		}
 		r := *lv
 		r.OutletAboveM = a.BaseElevationM + a.Outlet.ElevationM - rp.cfg.BaseElevationM
-		ft.run.recv = &r
+		ft.run.Recv = &r
 	}
 }
 
@@ -545,24 +510,24 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 		}
 		for _, ar := range recs {
 			var r alert.Record
-			if err := decodeGob(ar.Data, &r); err != nil {
+			if err := scan.DecodeGob(ar.Data, &r); err != nil {
 				return nil, fmt.Errorf("tank %s: stored alert %s: %w", o.tank, ar.Key, err)
 			}
 			prev = append(prev, r)
 		}
 		// A failed tank contributes the evaluations made before it failed.
 		for _, ev := range o.evals {
-			sl := slots[ev.at.UnixNano()]
+			sl := slots[ev.At.UnixNano()]
 			if sl == nil {
 				sl = &slot{}
-				slots[ev.at.UnixNano()] = sl
+				slots[ev.At.UnixNano()] = sl
 			}
-			if ev.withheld {
+			if ev.Withheld {
 				sl.feedOnly = append(sl.feedOnly, o.tank)
 			} else {
 				sl.tanks = append(sl.tanks, o.tank)
 			}
-			sl.findings = append(sl.findings, ev.findings...)
+			sl.findings = append(sl.findings, ev.Findings...)
 		}
 	}
 	times := make([]int64, 0, len(slots))
@@ -588,7 +553,7 @@ func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event
 	var put []store.AlertRecord
 	for _, r := range tr.Records() {
 		keep[r.Key] = true
-		data, err := encodeGob(r)
+		data, err := scan.EncodeGob(r)
 		if err != nil {
 			return nil, err
 		}

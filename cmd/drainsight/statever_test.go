@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"drainsight/detect"
+	"drainsight/scan"
 	"drainsight/store"
 )
 
@@ -28,8 +29,8 @@ func TestStateVersionRebuilt(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var saved savedState
-	if err := decodeState(blob, &saved); err != nil {
+	var saved scan.SavedState
+	if err := scan.DecodeState(blob, &saved); err != nil {
 		t.Fatal(err)
 	}
 	fitsBefore, err := st.Fits("E1", 0, 1<<62)
@@ -38,7 +39,7 @@ func TestStateVersionRebuilt(t *testing.T) {
 	}
 	saved.Detector.Version = detect.StateVersion + 1
 	saved.Detector.Learn = nil // what a different layout might leave
-	if blob, err = encodeState(saved); err != nil {
+	if blob, err = scan.EncodeState(saved); err != nil {
 		t.Fatal(err)
 	}
 	cp, _, err := st.Checkpoint("E1")
@@ -65,8 +66,8 @@ func TestStateVersionRebuilt(t *testing.T) {
 	if blob, err = st.DetectorState("E1"); err != nil {
 		t.Fatal(err)
 	}
-	saved = savedState{}
-	if err := decodeState(blob, &saved); err != nil {
+	saved = scan.SavedState{}
+	if err := scan.DecodeState(blob, &saved); err != nil {
 		t.Fatal(err)
 	}
 	fitsAfter, _ := st.Fits("E1", 0, 1<<62)

@@ -2,24 +2,25 @@ package main
 
 import (
 	"fmt"
+	"os"
+	"path/filepath"
 	"time"
 
 	"drainsight/config"
 	"drainsight/detect"
 	"drainsight/ingest"
 	"drainsight/model"
+	"drainsight/scan"
+	"drainsight/store"
 )
 
-// plan is one tank's configuration copied onto the options of each part.
+// plan is one tank's configuration copied onto the options of each part:
+// the reading conversion, and what the pass needs (scan.Plan; Lookback is
+// the site's influx.overlap, 0 for file sources).
 type plan struct {
-	cfg    config.Tank
-	tank   model.Tank
-	conv   ingest.Conversion
-	segOpt model.SegmentOptions
-	fitOpt model.FitOptions
-	detOpt detect.Options
-	// lookback is the site's influx.overlap (0 for file sources).
-	lookback time.Duration
+	cfg  config.Tank
+	conv ingest.Conversion
+	scan.Plan
 }
 
 // buildPlans turns the loaded config into one plan per tank. Config
@@ -33,11 +34,11 @@ func buildPlans(cfg *config.Config) ([]*plan, error) {
 			return nil, fmt.Errorf("%s: tank %s: %w", cfg.File, ct.ID, err)
 		}
 		if s := cfg.Site(ct.Site); s != nil && s.Influx != nil {
-			p.lookback = s.Influx.Overlap
+			p.Lookback = s.Influx.Overlap
 			if ct.Source.Format == "influx" {
 				// A scan reads up to now minus the settle delay: the feed's
 				// age counts from there, or every scan would see a gap.
-				p.detOpt.ReadLag = s.Influx.SettleDelay
+				p.Detect.ReadLag = s.Influx.SettleDelay
 			}
 		}
 		plans = append(plans, p)
@@ -90,18 +91,18 @@ func buildPlan(ct config.Tank) (*plan, error) {
 		return nil, err
 	}
 	d := ct.Detection
-	return &plan{
-		cfg:  ct,
-		tank: t,
-		conv: conv,
-		segOpt: model.SegmentOptions{
+	return &plan{cfg: ct, conv: conv, Plan: scan.Plan{
+		ID:     ct.ID,
+		Tank:   t,
+		Linked: ct.Outlet.DischargesInto != "",
+		Segment: model.SegmentOptions{
 			MinDropM:    d.MinDropM,
 			MinDuration: d.MinDrainDuration,
 			Transient:   d.Transient,
 			Settle:      d.Settle,
 			GapLimit:    d.GapLimit,
 		},
-		detOpt: detect.Options{
+		Detect: detect.Options{
 			BaselineDrains:      d.BaselineDrains,
 			DesignKM25s:         d.DesignKM25s,
 			FalseAlarmYears:     d.FalseAlarmInterval.Hours() / (24 * 365.25),
@@ -111,7 +112,7 @@ func buildPlan(ct config.Tank) (*plan, error) {
 			GapLimit:            max(d.GapLimit, 15*time.Minute),
 			SilentLimit:         d.FeedSilentLimit,
 		},
-	}, nil
+	}}, nil
 }
 
 func buildShape(g config.Geometry) (model.Shape, error) {
@@ -135,4 +136,12 @@ func buildShape(g config.Geometry) (model.Shape, error) {
 		return model.NewStrappingTable(lv, vol)
 	}
 	return nil, fmt.Errorf("unknown shape %q", g.Shape)
+}
+
+// openStore opens the state file with a lock timeout, creating its directory.
+func openStore(path string) (*store.Store, error) {
+	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+		return nil, err
+	}
+	return store.Open(path, 5*time.Second)
 }
