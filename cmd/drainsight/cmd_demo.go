@@ -20,11 +20,11 @@ import (
 )
 
 const demoAbout = `Runs the whole job on the embedded demo plant: an invented water works with
-seven tanks of several shapes (upright, cone-bottomed and horizontal
-cylinders, a sphere), depth and pressure sensors, months of level data at
-10-60 s sampling made by drainsight's own simulator, with injected faults:
-gradual fouling, an abrupt blockage, a tank leak and level-sensor faults,
-beside healthy tanks.
+eight tanks of several shapes (upright, cone-bottomed and horizontal
+cylinders, a sphere, a rectangular tank), depth and pressure sensors, months
+of level data at 10-60 s sampling made by drainsight's own simulator, with
+injected faults: gradual fouling, an abrupt blockage, an eroding valve seat
+(excess outflow), a tank leak and level-sensor faults, beside healthy tanks.
 
 The demo writes its data files (CSV and line protocol) and its config
 (demo.yaml) into DIR, scans them like any plant, writes events.jsonl,
@@ -53,6 +53,7 @@ var demoSensors = []demoSensor{
 	{"pressure", "psi", 998.2067, "csv"},
 	{"depth", "m", 0, "line_protocol"},
 	{"depth", "cm", 0, "line_protocol"},
+	{"depth", "mm", 0, "csv"},
 }
 
 func runDemo(ctx context.Context, e *env, args []string) error {
@@ -274,6 +275,8 @@ func demoDescription(id string) string {
 		return "Stormwater detention basin"
 	case strings.Contains(id, "FWT"):
 		return "Filtrate tank"
+	case strings.Contains(id, "RWT"):
+		return "Rinse water tank"
 	}
 	return "Demo tank"
 }

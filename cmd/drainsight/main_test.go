@@ -108,6 +108,7 @@ func TestDemoEndToEnd(t *testing.T) {
 		{"KV-SMP-4", "restriction/abrupt"},  // blockage
 		{"KV-CDT-3", "tank_leak"},           // shell leak
 		{"KV-PHT-5", "sensor_fault/drift"},  // drifting level sensor
+		{"KV-RWT-8", "excess_outflow"},      // eroding valve seat
 	} {
 		if !contains(final[c.tank], c.kind) {
 			t.Errorf("%s: active at the end %v, want %s", c.tank, final[c.tank], c.kind)

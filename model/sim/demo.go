@@ -14,7 +14,7 @@ const DemoSite = "Kestrel Vale Water Works"
 func outletK(cd, d float64) float64 { return cd * math.Pi / 4 * d * d * model.Sqrt2g }
 
 // DemoPlant returns the tanks of an invented water works over days days from
-// from: seven tanks of varied duty, shape and sampling, with
+// from: eight tanks of varied duty, shape and sampling, with
 //
 //   - KV-BWR-1 backwash recovery tank: healthy (upright cylinder, 10 s);
 //   - KV-SHT-2 sludge holding tank: gradual fouling to -25 % over the last
@@ -28,7 +28,9 @@ func outletK(cd, d float64) float64 { return cd * math.Pi / 4 * d * d * model.Sq
 //   - KV-DTB-6 detention basin: healthy, slow daily drains, a data gap of
 //     8 h (upright cylinder, 60 s);
 //   - KV-FWT-7 filtrate tank: healthy outlet, noisy sensor with spikes and a
-//     metered feed that sometimes runs during drains (upright cylinder, 10 s).
+//     metered feed that sometimes runs during drains (upright cylinder, 10 s);
+//   - KV-RWT-8 rinse water tank: the outlet valve's seat erodes, K rising
+//     to +30 % from 45 % to 75 % of the period (rectangular, 20 s).
 //
 // Faults start early enough to be seen with at least a week of data. To
 // change a tank's shape, replace its Tank.Shape: the simulator handles any
@@ -94,6 +96,13 @@ func DemoPlant(from time.Time, days int) []TankSpec {
 			FillToM: 2.5, DrainsPerDay: 4, FillRateM3s: 0.012, InflowDuringDrainShare: 0.2, MeterInflow: true,
 			ValveOpenTime: 6 * time.Second,
 			Faults:        []Fault{{Kind: SensorSpikes, Start: from, Magnitude: 1, SizeM: 0.15}},
+		},
+		{
+			Tank:  tank("KV-RWT-8", model.Rectangular{LengthM: 3, WidthM: 2, InternalHeightM: 2.5}, 0.05, 0.08, 0.61),
+			KM25s: outletK(0.61, 0.08), SampleEvery: 20 * time.Second, NoiseM: 0.002,
+			FillToM: 2.1, DrainsPerDay: 4, FillRateM3s: 0.01, PartialDrainShare: 0.15,
+			ValveOpenTime: 6 * time.Second,
+			Faults:        []Fault{{Kind: Erosion, Start: at(0.45), End: at(0.75), Magnitude: 0.3}},
 		},
 	}
 }
