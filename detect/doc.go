@@ -140,6 +140,12 @@
 //   - noise: median noise of the last 5 idle periods (or drain fits) at least
 //     NoiseFactor (2) × the baseline median and an F test p < α (idle noise
 //     is MAD-based, so 37 % of its samples count as degrees of freedom).
+//     A rise in the drain fits alone, with the idle periods as quiet as at
+//     baseline, is no noisier sensor: when the latest complete drain's
+//     empty reading lies more than DriftM from the baseline ones it is
+//     drift (every reading offset, so drains fitted to the outlet's datum
+//     misfit); otherwise the drains no longer follow the square-root law
+//     (a leak off the outlet, say) and no sensor finding is raised.
 //   - spikes: the spike rate of the last 5 segments at least SpikeFactor (3)
 //     × the baseline rate and a Poisson p < α, the baseline rate estimated
 //     from the first 8 segments since the sensor epoch ((spikes + 0.5) /

@@ -525,8 +525,21 @@ func (s *State) recordFindings(now time.Time, opt Options) []Finding {
 				fstat := (rn * rn) / (bn * bn)
 				p := distuv.F{D1: d1, D2: d2}.Survival(fstat)
 				if p < opt.SensorAlpha {
-					out = append(out, mk(SubNoise, "noise_ratio", rn/bn, opt.NoiseFactor, p,
-						fmt.Sprintf("level noise in recent %s is %.1f× baseline (%.2g vs %.2g m; F = %.1f, p = %.2g)", what, rn/bn, rn, bn, fstat, p)))
+					switch d, drift, quiet := s.drainOnlyScatter(idle, opt); {
+					case drift:
+						// The drain fits scatter because their datum moved,
+						// not because the sensor got noisier.
+						out = append(out, mk(SubDrift, "empty_shift_m", d, opt.DriftM, math.NaN(),
+							fmt.Sprintf("the empty tank reading moved %+.3f m from its baseline while the idle noise did not rise; drain fits scatter %.1f× baseline because every reading is offset (sensor drift, not noise)", d, rn/bn)))
+					case quiet:
+						// Only the drains scatter, the idle readings are as
+						// quiet as ever: the drains no longer follow the
+						// square-root law (a leak off the outlet, say), which
+						// is not a sensor fault.
+					default:
+						out = append(out, mk(SubNoise, "noise_ratio", rn/bn, opt.NoiseFactor, p,
+							fmt.Sprintf("level noise in recent %s is %.1f× baseline (%.2g vs %.2g m; F = %.1f, p = %.2g)", what, rn/bn, rn, bn, fstat, p)))
+					}
 					noiseDone = true
 				}
 			}

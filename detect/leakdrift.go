@@ -229,3 +229,44 @@ func sensorOnly(fs []Finding) []Finding {
 	}
 	return out
 }
+
+// drainOnlyScatter looks behind a rise of the drain fits' scatter (idle
+// false): a sensor that got noisier shows it while the tank is shut too; a
+// drift offsets every reading, so drains fitted to the outlet's datum
+// misfit while the idle periods stay quiet; and drains that no longer
+// follow the square-root law (a leak through an opening off the outlet)
+// misfit the same way. quiet is true when the idle periods' noise (the last
+// 5 against the first BaselineDrains since the sensor epoch, with at least
+// that many) stayed below NoiseFactor × baseline; drift is true when, in
+// addition, the latest complete drain's empty reading lies more than DriftM
+// from the median of the first BaselineDrains ones, and d is that shift.
+func (s *State) drainOnlyScatter(idle bool, opt Options) (d float64, drift, quiet bool) {
+	if idle {
+		return 0, false, false
+	}
+	var idleNoise, empties []float64
+	for _, r := range s.Sensor.Recs {
+		if r.TimeNs < s.Sensor.EpochNs {
+			continue
+		}
+		switch {
+		case r.Idle && !math.IsNaN(r.NoiseM):
+			idleNoise = append(idleNoise, r.NoiseM)
+		case !r.Idle && r.HasEmpty:
+			empties = append(empties, r.EmptyHeadM)
+		}
+	}
+	nb := opt.BaselineDrains
+	n := len(idleNoise)
+	if n < nb+5 {
+		return 0, false, false
+	}
+	if b := median(idleNoise[:nb]); !(b > 0) || median(idleNoise[n-5:]) >= opt.NoiseFactor*b {
+		return 0, false, false // the idle periods are noisier too: noise
+	}
+	if len(empties) <= nb {
+		return 0, false, true
+	}
+	d = empties[len(empties)-1] - median(empties[:nb])
+	return d, math.Abs(d) > opt.DriftM, true
+}
