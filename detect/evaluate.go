@@ -301,7 +301,12 @@ func (s *State) classifyShift(f *Finding, now time.Time, opt Options, _ int) {
 		f.Subtype = SubGradual
 		lo, hi := profileInterval(sr.rssRamp, sr.RampIndex, s2)
 		f.Onset, f.OnsetLo, f.OnsetHi = nsTime(all[sr.RampIndex].TimeNs), nsTime(all[lo].TimeNs), nsTime(all[hi].TimeNs)
-		current = ts.Intercept // Theil-Sen's intercept is at t = 0, now
+		// The size is where K stands now: the median of the newest drains.
+		// Theil-Sen's line extrapolated to now overshoots a ramp that has
+		// levelled off (a valve seat worn to a new size, a deposit that
+		// stopped growing); the median lags an ongoing ramp by half its
+		// window (a few drains).
+		current = recentLevel(all)
 	} else {
 		f.Subtype = SubAbrupt
 		from := max(0, n-1)
@@ -628,4 +633,18 @@ func sumSpikes(r []SensorRec) int {
 		n += v.Spikes
 	}
 	return n
+}
+
+// recentDrains is how many of the newest drains give a gradual shift's
+// current size.
+const recentDrains = 8
+
+// recentLevel is the median ln K of the newest recentDrains points.
+func recentLevel(all []Point) float64 {
+	k := min(recentDrains, len(all))
+	y := make([]float64, k)
+	for i, p := range all[len(all)-k:] {
+		y[i] = p.LnK
+	}
+	return median(y)
 }

@@ -320,3 +320,30 @@ func TestRankFleet(t *testing.T) {
 		}
 	}
 }
+
+// TestGradualShiftLevelledOffSize: K rises +30 % over 30 days (a valve seat
+// wearing) and then stays; 30 days later the finding gives the size where
+// K stands, not the trend extrapolated past the plateau (before: +47 % on
+// the demo's eroding valve). Tolerance: the between-drain scatter of 2 %
+// over the 8 newest drains, about ±1.5 % with margin.
+func TestGradualShiftLevelledOffSize(t *testing.T) {
+	onset, top := dayNs(60), dayNs(90)
+	mult := func(ts int64) float64 {
+		switch {
+		case ts < onset:
+			return 1
+		case ts < top:
+			return 1 + 0.3*float64(ts-onset)/float64(top-onset)
+		}
+		return 1.3
+	}
+	s := NewState("t9")
+	st := history(t, s, Options{}, 9, 120, mult, zero)
+	fs := s.Evaluate(nsTime(st.tNs), Options{})
+	if len(fs) != 1 || fs[0].Kind != KindExcessOutflow {
+		t.Fatalf("findings %+v, want one excess outflow", fs)
+	}
+	if m := fs[0].MagnitudePct; math.Abs(m-30) > 1.5 {
+		t.Errorf("magnitude %.1f %%, want 30 ± 1.5 %%; evidence: %s", m, fs[0].Evidence)
+	}
+}
