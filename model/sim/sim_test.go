@@ -158,7 +158,7 @@ func TestSimulateDeterministic(t *testing.T) {
 func TestDemoPlantFaults(t *testing.T) {
 	const days = 30
 	specs := DemoPlant(t0, days)
-	if got, want := len(specs), 7; got != want {
+	if got, want := len(specs), 8; got != want {
 		t.Fatalf("tanks: got %d, want %d", got, want)
 	}
 	end := t0.Add(days * 24 * time.Hour)
@@ -205,6 +205,10 @@ func TestDemoPlantFaults(t *testing.T) {
 						t.Errorf("%s: drain K %g after blockage, want %g", spec.Tank.ID, d.KM25s, after)
 					}
 				}
+			case Erosion:
+				if got, want := tr.KAt(end)/spec.KM25s, 1+f.Magnitude; math.Abs(got-want) > 1e-12 {
+					t.Errorf("%s erosion: K ratio at end got %.4f, want %.4f", spec.Tank.ID, got, want)
+				}
 			case TankLeak:
 				if tr.LeakKAt(f.Start) != 0 || tr.LeakKAt(end) <= 0 {
 					t.Errorf("%s leak: K_leak %g at start, %g at end", spec.Tank.ID, tr.LeakKAt(f.Start), tr.LeakKAt(end))
@@ -243,7 +247,7 @@ func TestDemoPlantFaults(t *testing.T) {
 			t.Errorf("%s: metered inflow has %d samples, want %d", spec.Tank.ID, len(s.InflowM3s), s.Len())
 		}
 	}
-	for _, k := range []FaultKind{Fouling, Blockage, TankLeak, SensorDrift, SensorStuck} {
+	for _, k := range []FaultKind{Fouling, Blockage, Erosion, TankLeak, SensorDrift, SensorStuck, DataGap, SensorSpikes} {
 		if !kinds[k] {
 			t.Errorf("demo plant lacks a %v fault", k)
 		}
