@@ -55,7 +55,7 @@ const exponentScatterTau = 0.005
 // d ln(K√h - q)/d ln h = (1/2)/(1 - q/(K√h)) exceeds 1/2 everywhere. An
 // inflow of 5 % of the outlet flow at the start raises the apparent
 // exponent of a drain to half its starting head by about 0.03, one of 20 %
-// by about 0.15 (measured, TestPumpedFallsRejected). Nothing else lifts a
+// by about 0.15 (measured: TestInflowSuspected, TestScanPumpedFalls). Nothing else lifts a
 // turbulent outlet's exponent above its own drains': a restriction or an
 // eroded outlet changes K, not the exponent; a leak, a drift or a
 // downstream tank lowers it. So a drain is rejected when its exponent
