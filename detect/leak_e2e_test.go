@@ -76,6 +76,12 @@ func TestLeakFallsThroughSegmenter(t *testing.T) {
 				}
 			}
 			t.Logf("falls %v, idle h before onset %.0f, idle segments after onset %d (%.0f h), worst boundary error %.0f s", oc, idleB, idleN, idleH, worst)
+			// The leak's falls while shut are idle periods (the segmenter's
+			// leak-rate tests), so the leak chart sees them: at least half
+			// the idle time of the healthy days before the onset remains.
+			if idleH < 0.5*idleB {
+				t.Errorf("opening at %+.1f m, %.0f mm/h: %.0f idle hours after the onset, want at least half the %.0f before it", z, mmh, idleH, idleB)
+			}
 			if *dumpLeak && z == -0.3 && mmh == 80 {
 				for _, g := range segs {
 					if g.TimeNs[0] > onset.UnixNano() && g.TimeNs[0] < onset.UnixNano()+2*86400e9 {

@@ -104,3 +104,51 @@ func TestFitIdleErrors(t *testing.T) {
 		t.Errorf("below outlet: got leak %g err %v, want NaN and nil", f.LeakKM25s, err)
 	}
 }
+
+// The noise of an idle period with a leak is the transmitter's, not the
+// bow of the leak's curve about a line: 12 h of a Torricelli leak at
+// 80 mm/h from 3 m in a cylinder, 1 mm white noise, sampled at 10 s. The
+// MAD scale estimates σ (Hampel's consistency constant 1.4826 for normal
+// data, common practice); tolerance 10 % for 4320 readings.
+func TestFitIdleNoiseUnderLeakCurve(t *testing.T) {
+	tank := &Tank{ID: "i1", Shape: VerticalCylinder{DiameterM: 1.6, InternalHeightM: 3.6}, DatumKnown: true}
+	a := tank.Shape.AreaM2(3)
+	kLeak := 0.08 / 3600 * a / math.Sqrt(3) // 80 mm/h at 3 m
+	for seed := uint64(1); seed <= 5; seed++ {
+		seg := idleSeg(4320, 10, func(ts float64) float64 { return DrainHeadM(tank, kLeak, 3.0, ts) }, 0.001, seed)
+		f, err := FitIdle(tank, seg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if math.Abs(f.NoiseM-0.001) > 0.0001 {
+			t.Errorf("seed %d: noise got %.3g m, want 0.001 ± 10 %% (the leak's bow is not noise)", seed, f.NoiseM)
+		}
+	}
+}
+
+// On level idle periods with white noise the scatter about a quadratic
+// never falls to idleBowShare of the scatter about a line, so FitIdle's
+// noise stays the line's (its value the trend tests were calibrated on).
+func TestIdleQuadScaleAgreesOnWhiteNoise(t *testing.T) {
+	for _, n := range []int{idleBowMinN, 4000} {
+		lo := math.Inf(1)
+		for seed := uint64(1); seed <= 200; seed++ {
+			seg := idleSeg(n, 10, func(float64) float64 { return 1.2 }, 0.002, seed)
+			keep := make([]bool, n)
+			for i := range keep {
+				keep[i] = true
+			}
+			res, buf := make([]float64, n), make([]float64, n)
+			q := idleQuadScale(seg.TimeNs, seg.HeadM, keep, res, buf)
+			f, err := FitIdle(&Tank{ID: "i1", Shape: VerticalCylinder{DiameterM: 2, InternalHeightM: 3}}, seg)
+			if err != nil {
+				t.Fatal(err)
+			}
+			lo = min(lo, q/f.NoiseM)
+		}
+		if lo < idleBowShare+0.05 {
+			t.Errorf("n %d: smallest quadratic/line scale ratio %.3f over 200 seeds, want above %.2f", n, lo, idleBowShare+0.05)
+		}
+		t.Logf("n %d: smallest quadratic/line scale ratio %.3f", n, lo)
+	}
+}

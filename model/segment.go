@@ -50,6 +50,11 @@ type SegmentOptions struct {
 	// EmitFromNs drops segments with RawStartNs < EmitFromNs: an earlier
 	// scan emitted them. 0 means no limit.
 	EmitFromNs int64
+	// OutletKM25s is the outlet constant the tank's drains show (its
+	// baseline), m^2.5/s; 0 when not known yet, and the median of the last
+	// drains this Segmenter emitted stands in. A fall far slower than the
+	// outlet allows (see leakShare) is a leak while shut, not a drain.
+	OutletKM25s float64
 }
 
 // SegmentStats counts what a Segmenter saw and decided. Falls counts
@@ -257,6 +262,16 @@ type Segmenter struct {
 	toDirty    bool
 	prevT      int64
 
+	recentK       []float64 // mass-balance K of the last drains emitted (newest last), for the leak-rate test
+	refK          float64   // outlet K the leak tests compare with: OutletKM25s, else the median of recentK (0: not yet)
+	rootFall      float64   // ∫ sqrt(head) dt from the knee of the fall under way to sample rootTo
+	rootHead0     float64   // the same to sample rootWj (the Window's start)
+	rootTo        int       // last sample in rootFall
+	rootWj        int       // last sample in rootHead0
+	rootToR       float64   // sqrt(head) at rootTo
+	rootWjR       float64   // sqrt(head) at rootWj
+	winK          float64   // mass-balance K over the last Window of the fall (from s.wj)
+	fallKMax      float64   // largest winK of the fall so far
 	queue         []Segment
 	ready         []Segment
 	lastEmitStart int64
@@ -298,6 +313,7 @@ func NewSegmenter(t *Tank, opt SegmentOptions) *Segmenter {
 	s.maxIdle = max(dur(opt.MaxIdle, 24*time.Hour), 2*s.minIdle)
 	s.winNs = max(dur(opt.Window, 30*time.Minute), 1)
 	s.emitFrom = opt.EmitFromNs
+	s.refK = max(opt.OutletKM25s, 0)
 	if s.emitFrom == 0 {
 		s.emitFrom = math.MinInt64
 	}

@@ -21,7 +21,7 @@ func (s *Segmenter) step(i int, t int64, y float64) {
 			s.mark, s.iMark = y, i
 			s.setTimeout()
 		}
-		if s.slow(i, t, y) {
+		if s.slow(i, t, y) || s.leakAfter(i, t, y) {
 			return
 		}
 		// A rise ends the fall only once it has lasted: an upward step of
@@ -172,24 +172,125 @@ func (s *Segmenter) closeIdle() {
 
 // slow abandons a fall (rise) that has moved less than twice the trigger
 // level over the last Window and less than MinDropM in all: a leak, a drift or a
-// trickle, not a drain or a fill. The idle stretch it interrupted goes on.
+// trickle, not a drain or a fill. So does a fall of any size that has run
+// at a leak's rate from its knee (leakRate), also straight after a fill.
+// The idle stretch it interrupted goes on (or starts at the knee).
 func (s *Segmenter) slow(i int, t int64, y float64) bool {
-	if t-s.tAt(s.knee) < s.winNs || s.idleKeep < 0 {
+	if t-s.tAt(s.knee) < s.winNs {
 		return false
 	}
 	for s.tAt(s.wj+1) <= t-s.winNs {
 		s.wj++
 	}
-	if math.Abs(s.yAt(s.wj)-y) >= 2*s.trig || math.Abs(s.yAt(s.knee)-s.ext) >= s.minDrop() {
+	if s.state == stFall {
+		s.fallRoot(i)
+	}
+	leak := s.leakRate(i)
+	if !leak && (s.idleKeep < 0 || math.Abs(s.yAt(s.wj)-y) >= 2*s.trig || math.Abs(s.yAt(s.knee)-s.ext) >= s.minDrop()) {
 		return false
 	}
 	keep := s.idleKeep
+	if keep < 0 {
+		// a leak straight after a fill: the idle stretch starts at the knee
+		keep = s.knee
+	}
 	if s.state == stFall && s.tAt(s.knee) >= s.emitFrom {
 		s.stats.RejectedSlow++
 	}
-	s.toQuiet(max(s.stateStart, s.idleKeep, s.wj), i)
+	s.toQuiet(max(s.stateStart, keep, s.wj), i)
 	s.idleStart, s.idleKeep = keep, -1
 	s.setCut()
+	return true
+}
+
+// leakShare is the largest share of the outlet's K that a fall may show
+// and still be a leak while shut rather than a drain: a drain runs at the
+// outlet's K (a throttled valve at a fraction of it), a leak through the
+// shell or a passing valve at a few per mille (5-80 mm/h against metres
+// per hour). Falls of a leaking tank are then idle periods, which the leak
+// chart reads (FitIdle), and the drain that follows starts at its own knee
+// instead of being joined to them; a drain that goes on falling at a
+// leak's rate after its valve closed ends there (leakAfter).
+const leakShare = 0.05
+
+// recentKCap is how many drains' K the leak-rate test keeps.
+const recentKCap = 7
+
+// fallRoot brings the running integrals of sqrt(head) over the fall up to
+// sample i and the Window start s.wj: rootFall from the knee to i,
+// rootHead0 from the knee to s.wj. Each sample is added once, so the
+// leak tests cost O(1) a sample.
+func (s *Segmenter) fallRoot(i int) {
+	for ; s.rootTo < i; s.rootTo++ {
+		r := s.rootHead(s.rootTo+1, 0)
+		s.rootFall += 0.5 * (s.rootToR + r) * float64(s.tAt(s.rootTo+1)-s.tAt(s.rootTo)) * 1e-9
+		s.rootToR = r
+	}
+	for ; s.rootWj < s.wj; s.rootWj++ {
+		r := s.rootHead(s.rootWj+1, 0)
+		s.rootHead0 += 0.5 * (s.rootWjR + r) * float64(s.tAt(s.rootWj+1)-s.tAt(s.rootWj)) * 1e-9
+		s.rootWjR = r
+	}
+	if dw := s.rootFall - s.rootHead0; dw > 0 {
+		s.winK = (s.volAt(s.yAt(s.wj)) - s.volAt(s.yAt(i))) / dw
+		s.fallKMax = max(s.fallKMax, s.winK)
+	} else {
+		s.winK = 0
+	}
+}
+
+// resetRoot starts the running integrals at the knee of a new fall.
+func (s *Segmenter) resetRoot() {
+	s.rootFall, s.rootHead0, s.rootTo, s.rootWj, s.fallKMax = 0, 0, s.knee, s.knee, 0
+	s.rootToR = s.rootHead(s.knee, 0)
+	s.rootWjR = s.rootToR
+}
+
+// leakRate reports whether the fall under way has run, from its knee to
+// sample i, at less than leakShare of the outlet's K
+// (SegmentOptions.OutletKM25s, else the median of the last drains emitted).
+// The whole fall counts, not the last Window alone: a drain that has
+// stopped (valve shut, tank empty) is flat over its last Window but ran at
+// the outlet's K before. Only free falls; a fall that stays level (K 0) is
+// left to the other tests.
+func (s *Segmenter) leakRate(i int) bool {
+	if s.state != stFall || s.metered || !(s.refK > 0) || !(s.rootFall > 0) {
+		return false
+	}
+	kw := (s.volAt(s.yAt(s.knee)) - s.volAt(s.yAt(i))) / s.rootFall
+	return kw > 0 && kw < leakShare*s.refK
+}
+
+// leakAfter ends a drain that goes on falling at a leak's rate: over the
+// last Window the level still falls (by more than twice the trigger level,
+// so the stall test would not end it) but at less than leakShare of the K
+// the fall showed before (the largest mass-balance K over a Window of the
+// fall so far, fallKMax). With no head at all over the Window (the level
+// below the outlet) any fall is a leak's. The valve closed (or
+// the outlet ran dry) and a leak lowers the level on; the drain ends at the
+// Window's start, placed from the physics by finishDrain, and the leak's
+// fall is an idle period. Free falls of at least two Windows only.
+func (s *Segmenter) leakAfter(i int, t int64, y float64) bool {
+	if s.metered || t-s.tAt(s.knee) < 2*s.winNs || s.yAt(s.wj)-y < 2*s.trig {
+		return false
+	}
+	kd := s.fallKMax
+	if !(kd > 0) {
+		return false
+	}
+	if s.rootFall-s.rootHead0 > 0 {
+		if kw := s.winK; !(kw > 0 && kw < leakShare*kd) {
+			return false
+		}
+	} else if s.linked || s.yAt(s.wj) > 0 {
+		// no head over the whole Window: below the outlet nothing but a
+		// leak lowers the level (a linked outlet may run backwards)
+		return false
+	}
+	e := s.wj
+	s.closeIdle()
+	s.finishDrain(s.knee, e, i)
+	s.toQuiet(e+1, i)
 	return true
 }
 
@@ -220,6 +321,7 @@ func (s *Segmenter) markBlip(j int) {
 // began at sample pre.
 func (s *Segmenter) beginFall(k, i, pre int) {
 	s.state, s.knee, s.wj, s.idleKeep, s.riseAt, s.blipUntil = stFall, k, k, -1, -1, -1
+	s.resetRoot()
 	s.pre = min(max(pre, k-boundPreMax, s.base), k)
 	s.ext, s.iExt = s.yAt(k), k
 	s.mark, s.iMark = s.yAt(k), k
@@ -533,6 +635,15 @@ func (s *Segmenter) finishDrain(k, e, d int) {
 	if !(r >= ratioLo && r <= ratioHi) || !s.metered && s.feedDip(a, b, datum) {
 		s.rejectFall(k, e, drop, FallInflow)
 		return
+	}
+	if km := s.massK(a, b, datum); km > 0 && !(s.opt.OutletKM25s > 0) {
+		s.recentK = append(s.recentK, km)
+		if len(s.recentK) > recentKCap {
+			s.recentK = s.recentK[1:]
+		}
+		if len(s.recentK) >= 3 {
+			s.refK = median(slices.Clone(s.recentK))
+		}
 	}
 	g := Segment{Tank: s.id, Kind: Drain, RawStartNs: tk, RawEndNs: s.tAt(e), Complete: complete, EmptyHeadM: math.NaN()}
 	if complete {

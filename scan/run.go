@@ -166,6 +166,9 @@ func Open(st *store.Store, p *Plan, log *slog.Logger) (*Run, int64, error) {
 		r.Det = saved.Detector
 	}
 	opt := p.Segment
+	if r.Det.Ref.Set && opt.OutletKM25s == 0 {
+		opt.OutletKM25s = r.Det.Ref.KM25s // for the leak-rate test of falls while shut
+	}
 	from := int64(0)
 	if ok {
 		opt.EmitFromNs = cp.CommittedNs
