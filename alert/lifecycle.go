@@ -43,16 +43,35 @@ type Event struct {
 	Finding detect.Finding
 }
 
-// Key identifies a finding across runs. Outlet findings are one per tank
-// and kind: a restriction first called abrupt and later gradual is the same
-// finding with a refined subtype, not a new alert. Sensor faults are one per
+// ID identifies a finding across runs: the one owner of an alert's
+// identity (the state file keys its lifecycle records by it, receivers
+// de-duplicate on it). Outlet findings are one per tank and kind: a
+// restriction first called abrupt and later gradual is the same finding
+// with a refined subtype, not a new alert. Sensor faults are one per
 // subtype: a stuck reading and a drift are different problems.
-func Key(f detect.Finding) string {
-	if f.Kind == "sensor_fault" {
-		return f.Tank + "|" + f.Kind + "|" + f.Subtype
-	}
-	return f.Tank + "|" + f.Kind
+type ID struct {
+	Tank, Kind, Subtype string
 }
+
+// IDOf returns the identity of f.
+func IDOf(f detect.Finding) ID {
+	if f.Kind == detect.KindSensorFault {
+		return ID{Tank: f.Tank, Kind: f.Kind, Subtype: f.Subtype}
+	}
+	return ID{Tank: f.Tank, Kind: f.Kind}
+}
+
+// String is the text form of the identity: "tank|kind", or
+// "tank|kind|subtype" for a sensor fault (Record.Key).
+func (id ID) String() string {
+	if id.Kind == detect.KindSensorFault {
+		return id.Tank + "|" + id.Kind + "|" + id.Subtype
+	}
+	return id.Tank + "|" + id.Kind
+}
+
+// Key is IDOf(f).String().
+func Key(f detect.Finding) string { return IDOf(f).String() }
 
 // DefaultClearAfter is the number of consecutive evaluations a finding must
 // be absent from before it is cleared: a statistic hovering at its limit

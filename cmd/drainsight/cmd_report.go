@@ -145,7 +145,7 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 		if blob, err := st.Feed(id); err != nil {
 			return in, err
 		} else if len(blob) > 0 {
-			var fr feedRecord
+			var fr scan.FeedRecord
 			if err := json.Unmarshal(blob, &fr); err != nil {
 				return in, fmt.Errorf("tank %s: stored feed status: %w", id, err)
 			}

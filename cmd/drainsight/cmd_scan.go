@@ -3,6 +3,7 @@ package main
 import (
 	"cmp"
 	"context"
+	"drainsight/scan"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -194,17 +195,6 @@ type findingRecord struct {
 	ForecastDate *time.Time `json:"forecast_date,omitempty"`
 }
 
-// sig rounds x to 6 significant digits (outputs stay stable across
-// platforms and readable); non-finite values become 0.
-func sig(x float64) float64 {
-	if math.IsNaN(x) || math.IsInf(x, 0) || x == 0 {
-		return 0
-	}
-	d := 5 - int(math.Floor(math.Log10(math.Abs(x))))
-	p := math.Pow(10, float64(d))
-	return math.Round(x*p) / p
-}
-
 func optTime(t time.Time) *time.Time {
 	if t.IsZero() {
 		return nil
@@ -216,18 +206,18 @@ func optTime(t time.Time) *time.Time {
 func toEventRecord(f model.Fit) eventRecord {
 	r := eventRecord{
 		Tank: f.Tank, Start: time.Unix(0, f.StartNs).UTC(), End: time.Unix(0, f.EndNs).UTC(),
-		Samples: f.N, HeadStartM: sig(f.H0M), HeadEndM: sig(f.H1M), KM25s: sig(f.KM25s), KSE: sig(f.KSEM25s),
-		KLo95: sig(f.KLo95M25s), KHi95: sig(f.KHi95M25s), CdAM2: sig(f.CdAM2), R2: sig(f.R2),
+		Samples: f.N, HeadStartM: scan.Sig(f.H0M), HeadEndM: scan.Sig(f.H1M), KM25s: scan.Sig(f.KM25s), KSE: scan.Sig(f.KSEM25s),
+		KLo95: scan.Sig(f.KLo95M25s), KHi95: scan.Sig(f.KHi95M25s), CdAM2: scan.Sig(f.CdAM2), R2: scan.Sig(f.R2),
 		Quality: string(f.Quality), QualityReason: f.QualityReason, Method: f.Method,
-		Exponent: sig(f.Exponent), ExponentSE: sig(f.ExponentSE), SigmaM: sig(f.SigmaM),
-		ResidualRho: sig(f.ResidualRho), EffectiveN: f.EffectiveN, Complete: f.Complete,
+		Exponent: scan.Sig(f.Exponent), ExponentSE: scan.Sig(f.ExponentSE), SigmaM: scan.Sig(f.SigmaM),
+		ResidualRho: scan.Sig(f.ResidualRho), EffectiveN: f.EffectiveN, Complete: f.Complete,
 	}
 	if f.DatumFitted {
-		d := sig(f.DatumM)
+		d := scan.Sig(f.DatumM)
 		r.DatumM = &d
 	}
 	if !math.IsNaN(f.Cd) && f.Cd > 0 {
-		cd := sig(f.Cd)
+		cd := scan.Sig(f.Cd)
 		r.Cd = &cd
 	}
 	return r
@@ -238,13 +228,13 @@ func toFindingRecord(ev alert.Event) findingRecord {
 	r := findingRecord{
 		Tank: f.Tank, Kind: f.Kind, Subtype: f.Subtype, Status: string(ev.Status), StatusAt: ev.At.UTC(), DetectedAt: f.DetectedAt.UTC(),
 		Onset: optTime(f.Onset), OnsetLo: optTime(f.OnsetLo), OnsetHi: optTime(f.OnsetHi),
-		MagnitudePct: sig(f.MagnitudePct), Statistic: f.Statistic, Value: sig(f.Value), Threshold: sig(f.Threshold),
+		MagnitudePct: scan.Sig(f.MagnitudePct), Statistic: f.Statistic, Value: scan.Sig(f.Value), Threshold: scan.Sig(f.Threshold),
 		Evidence: f.Evidence,
 	}
 	if !math.IsNaN(f.PValue) {
 		p := f.PValue
 		if p != 0 {
-			p = sig(p)
+			p = scan.Sig(p)
 		}
 		r.PValue = &p
 	}
@@ -278,7 +268,7 @@ func writeOutputs(dir string, res *scanResult) error {
 	}
 	var feeds []any
 	for i := range res.outcomes {
-		if r, ok := res.outcomes[i].feedRecord(); ok {
+		if r, ok := res.outcomes[i].FeedRecord(); ok {
 			feeds = append(feeds, r)
 		}
 	}
@@ -350,9 +340,9 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 	var samples int64
 	drains, fits := 0, 0
 	for _, o := range res.outcomes {
-		samples += o.samples
-		drains += o.drains
-		fits += len(o.fits)
+		samples += o.Samples
+		drains += o.Drains
+		fits += len(o.Fits)
 	}
 	fmt.Fprintf(w, "Scanned %d tanks at %s: %d samples, %d drains, %d fitted (%s).\n",
 		len(res.outcomes), res.now.Format(time.RFC3339), samples, drains, fits, took.Round(time.Millisecond))
@@ -361,7 +351,7 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 	}
 	printFalls(w, res.outcomes)
 	for _, o := range res.failed() {
-		fmt.Fprintf(w, "FAILED %s: %v\n", o.tank, o.err)
+		fmt.Fprintf(w, "FAILED %s: %v\n", o.Tank, o.Err)
 	}
 	printFeeds(w, res.outcomes)
 	if len(res.events) == 0 {
@@ -377,12 +367,12 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 
 // printFalls writes what became of the falls of the pass: how many were
 // seen, fitted, rejected by reason and left pending.
-func printFalls(w io.Writer, outcomes []tankOutcome) {
+func printFalls(w io.Writer, outcomes []scan.Outcome) {
 	var st model.SegmentStats
 	fitFailed := 0
 	by := map[model.FitFailure]int{}
 	for _, o := range outcomes {
-		s := o.seg
+		s := o.Seg
 		st.Falls += s.Falls
 		st.Drains += s.Drains
 		st.RejectedShort += s.RejectedShort
@@ -391,8 +381,8 @@ func printFalls(w io.Writer, outcomes []tankOutcome) {
 		st.RejectedTransient += s.RejectedTransient
 		st.RejectedInflow += s.RejectedInflow
 		st.Pending += s.Pending
-		fitFailed += o.fitFailed
-		for r, n := range o.fitFailedBy {
+		fitFailed += o.FitFailed
+		for r, n := range o.FitFailedBy {
 			by[r] += n
 		}
 	}
@@ -435,24 +425,24 @@ func printFalls(w io.Writer, outcomes []tankOutcome) {
 // silent at the scan's time, and the data gaps seen in this pass. Data
 // availability is the data path's condition, reported here and never as a
 // tank finding.
-func printFeeds(w io.Writer, outcomes []tankOutcome) {
+func printFeeds(w io.Writer, outcomes []scan.Outcome) {
 	count := map[detect.FeedState]int{}
 	var notOK, gapped []string
 	for _, o := range outcomes {
-		fs, ok := o.feed()
+		fs, ok := o.Feed()
 		if !ok {
 			continue
 		}
 		count[fs.State]++
 		if fs.State == detect.FeedGap || fs.State == detect.FeedSilent {
-			notOK = append(notOK, fmt.Sprintf("%s %s since %s (%.1f h)", o.tank, fs.State, fs.SilentSince.Format(time.RFC3339), fs.SilentForS/3600))
+			notOK = append(notOK, fmt.Sprintf("%s %s since %s (%.1f h)", o.Tank, fs.State, fs.SilentSince.Format(time.RFC3339), fs.SilentForS/3600))
 		}
-		if len(o.gaps) > 0 {
+		if len(o.Gaps) > 0 {
 			var longest time.Duration
-			for _, g := range o.gaps {
+			for _, g := range o.Gaps {
 				longest = max(longest, time.Duration(g.EndNs-g.StartNs))
 			}
-			gapped = append(gapped, fmt.Sprintf("%s %d (longest %.1f h)", o.tank, len(o.gaps), longest.Hours()))
+			gapped = append(gapped, fmt.Sprintf("%s %d (longest %.1f h)", o.Tank, len(o.Gaps), longest.Hours()))
 		}
 	}
 	fmt.Fprintf(w, "Feeds: %d ok, %d in a gap, %d silent, %d without data.\n",

@@ -25,7 +25,7 @@ type influxTank struct {
 	lastNs int64 // newest sample pulled (the pull goroutine's own)
 	// inflowM3s is the meter's last reading (NaN before the first).
 	inflowM3s float64
-	out       tankOutcome
+	out       scan.Outcome
 	failed    bool
 }
 
@@ -41,7 +41,7 @@ type pulledWindow struct {
 // window), feeds the samples to the tanks' segmenters and commits each tank
 // after every window, so an interrupted pass resumes where it stopped and a
 // failed window leaves the checkpoints of its tanks untouched.
-func (j *job) scanInflux(ctx context.Context, plans []*plan, now time.Time, opt scanOptions) []tankOutcome {
+func (j *job) scanInflux(ctx context.Context, plans []*plan, now time.Time, opt scanOptions) []scan.Outcome {
 	bySite := map[string][]*plan{}
 	var sites []string
 	for _, p := range plans {
@@ -50,20 +50,20 @@ func (j *job) scanInflux(ctx context.Context, plans []*plan, now time.Time, opt 
 		}
 		bySite[p.cfg.Site] = append(bySite[p.cfg.Site], p)
 	}
-	var outs []tankOutcome
+	var outs []scan.Outcome
 	for _, site := range sites {
 		outs = append(outs, j.scanSite(ctx, site, bySite[site], now, opt)...)
 	}
 	return outs
 }
 
-func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now time.Time, opt scanOptions) []tankOutcome {
+func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now time.Time, opt scanOptions) []scan.Outcome {
 	site := j.cfg.Site(siteID)
 	c := j.clients[siteID]
-	fail := func(err error) []tankOutcome {
-		outs := make([]tankOutcome, len(plans))
+	fail := func(err error) []scan.Outcome {
+		outs := make([]scan.Outcome, len(plans))
 		for i, p := range plans {
-			outs[i] = tankOutcome{tank: p.cfg.ID, err: err}
+			outs[i] = scan.Outcome{Tank: p.cfg.ID, Err: err}
 		}
 		return outs
 	}
@@ -101,10 +101,10 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	var ids []string
 	for _, p := range plans {
 		run, from, err := scan.Open(j.st, &p.Plan, j.log)
-		t := &influxTank{p: p, run: run, out: tankOutcome{tank: p.cfg.ID}, inflowM3s: math.NaN()}
+		t := &influxTank{p: p, run: run, out: scan.Outcome{Tank: p.cfg.ID}, inflowM3s: math.NaN()}
 		switch {
 		case err != nil:
-			t.out.err, t.failed = err, true
+			t.out.Err, t.failed = err, true
 		case !run.HadCheckpoint && opt.sinceNs != 0:
 			from = opt.sinceNs
 		case !run.HadCheckpoint:
@@ -179,7 +179,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			// the site keeps its checkpoint and reports the error.
 			for _, t := range tanks {
 				if !t.failed {
-					t.out.err, t.failed = fmt.Errorf("window %s: %w", time.Unix(0, w[0]).UTC().Format(time.RFC3339), pw.err), true
+					t.out.Err, t.failed = fmt.Errorf("window %s: %w", time.Unix(0, w[0]).UTC().Format(time.RFC3339), pw.err), true
 				}
 			}
 			cancel()
@@ -202,10 +202,10 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				}
 				fits, err := t.run.Commit(final, now.UnixNano())
 				if err != nil {
-					t.out.err, t.failed = err, true
+					t.out.Err, t.failed = err, true
 					return
 				}
-				t.out.fits = append(t.out.fits, fits...)
+				t.out.Fits = append(t.out.Fits, fits...)
 				if len(fits) > 0 {
 					if err := c.WriteFits(ctx, ix.FitsMeasurement, fits, siteID); err != nil {
 						j.log.Warn("fit write-back failed", "tank", t.p.cfg.ID, "err", err)
@@ -218,19 +218,15 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 			opt.progress(wi+1, len(windows), siteID)
 		}
 	}
-	outs := make([]tankOutcome, 0, len(tanks))
+	outs := make([]scan.Outcome, 0, len(tanks))
 	for _, t := range tanks {
-		if t.run != nil {
-			t.out.samples, t.out.drains, t.out.reset = t.run.Total, t.run.Drains, t.run.MaintChanged
-			t.out.seg, t.out.falls, t.out.fitFailed, t.out.fitFailedBy = t.run.Seg.Stats(), t.run.Falls, t.run.FitErr, t.run.FitErrBy
+		t.out.Collect(t.run)
+		if t.run != nil && t.out.Err != nil {
+			t.out.Evals = t.run.Evals // evaluated before the failure
 		}
-		if t.run != nil && t.out.err != nil {
-			t.out.evals = t.run.Evals // evaluated before the failure
-		}
-		if t.out.err == nil && t.run != nil {
-			t.out.evals = append(t.run.Evals, scan.Evaluate(t.run.Det, now, t.p.Detect))
-			t.out.gaps = t.run.Det.GapsBetween(time.Unix(0, t.run.PrevEvalNs), now)
-			if ev := t.out.evals[len(t.out.evals)-1]; !ev.Withheld {
+		if t.out.Err == nil && t.run != nil {
+			t.out.Finish(t.run, now)
+			if ev := t.out.Evals[len(t.out.Evals)-1]; !ev.Withheld {
 				// While the data are missing the findings are withheld:
 				// what was written before stands, and a feed notice is the
 				// data path's condition, not an outlet finding.
@@ -261,7 +257,7 @@ func linkWindow(tanks []*influxTank, byID map[string]*influxTank, bufs map[strin
 		}
 		rt := byID[into]
 		if rt == nil {
-			t.out.err, t.failed = fmt.Errorf("the level of %s, which the outlet discharges into, is not read in this pass", into), true
+			t.out.Err, t.failed = fmt.Errorf("the level of %s, which the outlet discharges into, is not read in this pass", into), true
 			continue
 		}
 		lv := model.ReceivingLevel{MaxGapNs: int64(receiverMaxGap),

@@ -3,7 +3,6 @@ package main
 import (
 	"cmp"
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -15,7 +14,6 @@ import (
 
 	"drainsight/alert"
 	"drainsight/config"
-	"drainsight/detect"
 	"drainsight/ingest"
 	"drainsight/ingest/influx"
 	"drainsight/model"
@@ -109,89 +107,10 @@ type scanOptions struct {
 	final bool
 }
 
-// tankOutcome is what one tank gave in one pass.
-type tankOutcome struct {
-	tank    string
-	fits    []model.Fit
-	evals   []scan.Evaluation // in time order; the last one is at the scan's now
-	samples int64
-	drains  int
-	err     error
-	// reset is set when maintenance records changed: the tank's findings
-	// clear at once if absent.
-	reset bool
-	// gaps are the data gaps (stretches without samples longer than the
-	// detection gap limit) that overlap this pass: the feed's status, shown
-	// in the summary, never a finding.
-	gaps []detect.Gap
-	// seg counts what the segmenter saw and decided; falls lists each
-	// fall; fitFailed counts drains whose fit failed.
-	seg         model.SegmentStats
-	falls       []model.Fall
-	fitFailed   int
-	fitFailedBy map[model.FitFailure]int
-}
-
-// feedRecord is one tank's feed at the end of a pass: one line of
-// feeds.jsonl and the feed status kept in the state file (schema in the
-// README). It is the data path's condition, never a tank finding.
-type feedRecord struct {
-	detect.FeedStatus
-	// GapsInPass and LongestGapInPassS: the data gaps that overlap the pass
-	// (since the tank's previous evaluation) and the longest of them, s.
-	GapsInPass        int     `json:"gaps_in_pass"`
-	LongestGapInPassS float64 `json:"longest_gap_in_pass_s"`
-}
-
-// feedRecord returns the tank's feed record; ok is false for a tank that
-// failed or was not evaluated.
-func (o *tankOutcome) feedRecord() (feedRecord, bool) {
-	fs, ok := o.feed()
-	if !ok || o.err != nil {
-		return feedRecord{}, false
-	}
-	fs.SilentForS, fs.MissingShare24h, fs.SilentLimitS = sig(fs.SilentForS), sig(fs.MissingShare24h), sig(fs.SilentLimitS)
-	r := feedRecord{FeedStatus: fs, GapsInPass: len(o.gaps)}
-	for _, g := range o.gaps {
-		r.LongestGapInPassS = max(r.LongestGapInPassS, time.Duration(g.EndNs-g.StartNs).Seconds())
-	}
-	r.LongestGapInPassS = sig(r.LongestGapInPassS)
-	return r, true
-}
-
-// putFeeds stores each evaluated tank's feed record in the state file, for
-// the report and status pages.
-func (j *job) putFeeds(outcomes []tankOutcome) error {
-	feeds := map[string][]byte{}
-	for i := range outcomes {
-		r, ok := outcomes[i].feedRecord()
-		if !ok {
-			continue
-		}
-		b, err := json.Marshal(r)
-		if err != nil {
-			return fmt.Errorf("tank %s: feed status: %w", outcomes[i].tank, err)
-		}
-		feeds[outcomes[i].tank] = b
-	}
-	if len(feeds) == 0 {
-		return nil
-	}
-	return j.st.PutFeeds(feeds)
-}
-
-// feed returns the tank's feed status at the last evaluation.
-func (o *tankOutcome) feed() (detect.FeedStatus, bool) {
-	if len(o.evals) == 0 {
-		return detect.FeedStatus{}, false
-	}
-	return o.evals[len(o.evals)-1].Feed, true
-}
-
 // scanResult is what one pass of the job gave.
 type scanResult struct {
 	now      time.Time
-	outcomes []tankOutcome
+	outcomes []scan.Outcome
 	ingest   ingest.Report
 	events   []alert.Event
 }
@@ -199,15 +118,15 @@ type scanResult struct {
 func (r *scanResult) fits() []model.Fit {
 	var out []model.Fit
 	for _, o := range r.outcomes {
-		out = append(out, o.fits...)
+		out = append(out, o.Fits...)
 	}
 	return out
 }
 
-func (r *scanResult) failed() []tankOutcome {
-	var out []tankOutcome
+func (r *scanResult) failed() []scan.Outcome {
+	var out []scan.Outcome
 	for _, o := range r.outcomes {
-		if o.err != nil {
+		if o.Err != nil {
 			out = append(out, o)
 		}
 	}
@@ -239,17 +158,17 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 		now = time.Now().UTC()
 	}
 	var mu sync.Mutex
-	outcomes := make([]tankOutcome, 0, len(j.plans))
-	record := func(o tankOutcome) {
+	outcomes := make([]scan.Outcome, 0, len(j.plans))
+	record := func(o scan.Outcome) {
 		mu.Lock()
 		outcomes = append(outcomes, o)
 		done := len(outcomes)
 		mu.Unlock()
-		if o.err != nil {
-			j.log.Error("tank failed", "tank", o.tank, "err", o.err)
+		if o.Err != nil {
+			j.log.Error("tank failed", "tank", o.Tank, "err", o.Err)
 		}
 		if opt.progress != nil {
-			opt.progress(done, len(j.plans), o.tank)
+			opt.progress(done, len(j.plans), o.Tank)
 		}
 	}
 	fileOuts, rep, newest := j.scanFiles(ctx, fileTanks, now)
@@ -271,13 +190,13 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	for _, o := range j.scanInflux(ctx, influxTanks, now, opt) {
 		record(o)
 	}
-	slices.SortFunc(outcomes, func(a, b tankOutcome) int { return cmp.Compare(a.tank, b.tank) })
+	slices.SortFunc(outcomes, func(a, b scan.Outcome) int { return cmp.Compare(a.Tank, b.Tank) })
 	res.outcomes = outcomes
 	// The lifecycle runs even when the pass was interrupted: what was
 	// committed and evaluated is reported.
-	evs, err := j.updateAlerts(now, outcomes)
+	evs, err := scan.UpdateAlerts(j.st, outcomes)
 	res.events = evs
-	if ferr := j.putFeeds(outcomes); ferr != nil {
+	if ferr := scan.PutFeeds(j.st, outcomes); ferr != nil {
 		err = errors.Join(err, ferr)
 	}
 	if cerr := ctx.Err(); cerr != nil {
@@ -290,7 +209,7 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 type fileTank struct {
 	p   *plan
 	run *scan.Run
-	out tankOutcome
+	out scan.Outcome
 }
 
 // pastSettle reports whether now is past the tank's last sample of this
@@ -308,18 +227,16 @@ func (f *fileTank) pastSettle(now time.Time) bool {
 
 // finish commits the tank (unless it failed) and evaluates it at now; with
 // complete set the tank's history is taken as complete.
-func (f *fileTank) finish(now time.Time, complete bool) tankOutcome {
+func (f *fileTank) finish(now time.Time, complete bool) scan.Outcome {
 	o := f.out
-	if o.err != nil || f.run == nil {
+	if o.Err != nil || f.run == nil {
 		return o
 	}
 	f.run.Complete = complete
-	o.fits, o.err = f.run.Commit(true, now.UnixNano())
-	o.samples, o.drains, o.reset = f.run.Total, f.run.Drains, f.run.MaintChanged
-	o.seg, o.falls, o.fitFailed, o.fitFailedBy = f.run.Seg.Stats(), f.run.Falls, f.run.FitErr, f.run.FitErrBy
-	if o.err == nil {
-		o.evals = append(f.run.Evals, scan.Evaluate(f.run.Det, now, f.run.P.Detect))
-		o.gaps = f.run.Det.GapsBetween(time.Unix(0, f.run.PrevEvalNs), now)
+	o.Fits, o.Err = f.run.Commit(true, now.UnixNano())
+	o.Collect(f.run)
+	if o.Err == nil {
+		o.Finish(f.run, now)
 	}
 	return o
 }
@@ -348,11 +265,11 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 		limit = now.UnixNano()
 	}
 	for _, p := range plans {
-		ft := &fileTank{p: p, out: tankOutcome{tank: p.cfg.ID}}
+		ft := &fileTank{p: p, out: scan.Outcome{Tank: p.cfg.ID}}
 		all = append(all, ft)
 		run, from, err := scan.Open(j.st, &p.Plan, j.log)
 		if err != nil {
-			ft.out.err = err
+			ft.out.Err = err
 			continue
 		}
 		run.FromNs, run.LimitNs = from, limit
@@ -379,7 +296,7 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 		g := groups[key]
 		byID := make(map[string]*fileTank, len(g.tanks))
 		for _, ft := range g.tanks {
-			byID[ft.out.tank] = ft
+			byID[ft.out.Tank] = ft
 		}
 		format, err := ingest.ParseFormat(g.src.Format)
 		if err == nil {
@@ -402,7 +319,7 @@ func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*f
 		}
 		if err != nil {
 			for _, ft := range g.tanks {
-				ft.out.err = err
+				ft.out.Err = err
 			}
 		}
 	}
@@ -432,7 +349,7 @@ func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) {
 			}
 		}
 		if rp == nil {
-			ft.out.err = fmt.Errorf("outlet.discharges_into: no tank %q", a.Outlet.DischargesInto)
+			ft.out.Err = fmt.Errorf("outlet.discharges_into: no tank %q", a.Outlet.DischargesInto)
 			continue
 		}
 		lv, err := levels[rp.cfg.ID], failed[rp.cfg.ID]
@@ -444,7 +361,7 @@ func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) {
 			}
 		}
 		if err != nil {
-			ft.out.err = fmt.Errorf("the level of %s, which the outlet discharges into: %w", rp.cfg.ID, err)
+			ft.out.Err = fmt.Errorf("the level of %s, which the outlet discharges into: %w", rp.cfg.ID, err)
 			continue
 		}
 		r := *lv
@@ -491,104 +408,14 @@ func readReceiver(ctx context.Context, p *plan) (*model.ReceivingLevel, error) {
 // not interpolated across (or four of its usual intervals, if longer).
 const receiverMaxGap = 10 * time.Minute
 
-// updateAlerts runs the alert lifecycle over every evaluation of the pass
-// in time order (tanks evaluated at the same instant together) and persists
-// it. It returns every event of the pass: transitions through the replayed
-// history and the state at the last evaluation.
-func (j *job) updateAlerts(now time.Time, outcomes []tankOutcome) ([]alert.Event, error) {
-	var prev []alert.Record
-	type slot struct {
-		tanks    []string
-		feedOnly []string // tanks whose data were missing: only their feed was evaluated
-		findings []detect.Finding
-	}
-	slots := map[int64]*slot{}
-	for _, o := range outcomes {
-		recs, err := j.st.Alerts(o.tank)
-		if err != nil {
-			return nil, err
-		}
-		for _, ar := range recs {
-			var r alert.Record
-			if err := scan.DecodeGob(ar.Data, &r); err != nil {
-				return nil, fmt.Errorf("tank %s: stored alert %s: %w", o.tank, ar.Key, err)
-			}
-			prev = append(prev, r)
-		}
-		// A failed tank contributes the evaluations made before it failed.
-		for _, ev := range o.evals {
-			sl := slots[ev.At.UnixNano()]
-			if sl == nil {
-				sl = &slot{}
-				slots[ev.At.UnixNano()] = sl
-			}
-			if ev.Withheld {
-				sl.feedOnly = append(sl.feedOnly, o.tank)
-			} else {
-				sl.tanks = append(sl.tanks, o.tank)
-			}
-			sl.findings = append(sl.findings, ev.Findings...)
-		}
-	}
-	times := make([]int64, 0, len(slots))
-	for t := range slots {
-		times = append(times, t)
-	}
-	slices.Sort(times)
-	tr := alert.NewTracker(prev)
-	for _, o := range outcomes {
-		if o.reset && o.err == nil {
-			tr.ResetTank(o.tank)
-		}
-	}
-	var evs []alert.Event
-	for i, t := range times {
-		e := tr.UpdateFeeds(time.Unix(0, t).UTC(), slots[t].tanks, slots[t].feedOnly, slots[t].findings)
-		if i < len(times)-1 {
-			e = alert.Notifiable(e) // history: transitions only
-		}
-		evs = append(evs, e...)
-	}
-	keep := map[string]bool{}
-	var put []store.AlertRecord
-	for _, r := range tr.Records() {
-		keep[r.Key] = true
-		data, err := scan.EncodeGob(r)
-		if err != nil {
-			return nil, err
-		}
-		put = append(put, store.AlertRecord{Key: alertKey(r.Finding), Data: data})
-	}
-	var del []store.AlertKey
-	for _, r := range prev {
-		if !keep[r.Key] {
-			del = append(del, alertKey(r.Finding))
-		}
-	}
-	if err := j.st.UpdateAlerts(put, del); err != nil {
-		return nil, err
-	}
-	return evs, nil
-}
-
-func alertKey(f detect.Finding) store.AlertKey {
-	// The same identity as alert.Key: outlet findings per kind, sensor
-	// faults per subtype.
-	k := store.AlertKey{Tank: f.Tank, Kind: f.Kind}
-	if f.Kind == "sensor_fault" {
-		k.Subtype = f.Subtype
-	}
-	return k
-}
-
 // errTankFailures reports how many tanks failed in a pass.
-func errTankFailures(failed []tankOutcome) error {
+func errTankFailures(failed []scan.Outcome) error {
 	if len(failed) == 0 {
 		return nil
 	}
 	errs := make([]error, len(failed))
 	for i, o := range failed {
-		errs[i] = fmt.Errorf("tank %s: %w", o.tank, o.err)
+		errs[i] = fmt.Errorf("tank %s: %w", o.Tank, o.Err)
 	}
 	return fmt.Errorf("%d of the tanks failed: %w", len(failed), errors.Join(errs...))
 }

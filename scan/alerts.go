@@ -1,0 +1,97 @@
+package scan
+
+import (
+	"fmt"
+	"slices"
+	"time"
+
+	"drainsight/alert"
+	"drainsight/detect"
+	"drainsight/store"
+)
+
+// UpdateAlerts runs the alert lifecycle over every evaluation of the pass
+// in time order (tanks evaluated at the same instant together) and persists
+// it: the lifecycle records of the outcomes' tanks are read from st, moved
+// on and written back in one transaction, keyed by alert.IDOf. It returns
+// every event of the pass: transitions through the replayed history and the
+// state at the last evaluation. A failed tank contributes the evaluations
+// made before it failed.
+func UpdateAlerts(st *store.Store, outcomes []Outcome) ([]alert.Event, error) {
+	var prev []alert.Record
+	type slot struct {
+		tanks    []string
+		feedOnly []string // tanks whose data were missing: only their feed was evaluated
+		findings []detect.Finding
+	}
+	slots := map[int64]*slot{}
+	for _, o := range outcomes {
+		recs, err := st.Alerts(o.Tank)
+		if err != nil {
+			return nil, err
+		}
+		for _, ar := range recs {
+			var r alert.Record
+			if err := DecodeGob(ar.Data, &r); err != nil {
+				return nil, fmt.Errorf("tank %s: stored alert %s: %w", o.Tank, ar.Key, err)
+			}
+			prev = append(prev, r)
+		}
+		for _, ev := range o.Evals {
+			sl := slots[ev.At.UnixNano()]
+			if sl == nil {
+				sl = &slot{}
+				slots[ev.At.UnixNano()] = sl
+			}
+			if ev.Withheld {
+				sl.feedOnly = append(sl.feedOnly, o.Tank)
+			} else {
+				sl.tanks = append(sl.tanks, o.Tank)
+			}
+			sl.findings = append(sl.findings, ev.Findings...)
+		}
+	}
+	times := make([]int64, 0, len(slots))
+	for t := range slots {
+		times = append(times, t)
+	}
+	slices.Sort(times)
+	tr := alert.NewTracker(prev)
+	for _, o := range outcomes {
+		if o.Reset && o.Err == nil {
+			tr.ResetTank(o.Tank)
+		}
+	}
+	var evs []alert.Event
+	for i, t := range times {
+		e := tr.UpdateFeeds(time.Unix(0, t).UTC(), slots[t].tanks, slots[t].feedOnly, slots[t].findings)
+		if i < len(times)-1 {
+			e = alert.Notifiable(e) // history: transitions only
+		}
+		evs = append(evs, e...)
+	}
+	keep := map[string]bool{}
+	var put []store.AlertRecord
+	for _, r := range tr.Records() {
+		keep[r.Key] = true
+		data, err := EncodeGob(r)
+		if err != nil {
+			return nil, err
+		}
+		put = append(put, store.AlertRecord{Key: storeKey(r.Finding), Data: data})
+	}
+	var del []store.AlertKey
+	for _, r := range prev {
+		if !keep[r.Key] {
+			del = append(del, storeKey(r.Finding))
+		}
+	}
+	if err := st.UpdateAlerts(put, del); err != nil {
+		return nil, err
+	}
+	return evs, nil
+}
+
+// storeKey is the state file's key of a finding's lifecycle record: its
+// alert.ID.
+func storeKey(f detect.Finding) store.AlertKey { return store.AlertKey(alert.IDOf(f)) }

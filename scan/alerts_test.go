@@ -1,0 +1,113 @@
+package scan_test
+
+import (
+	"path/filepath"
+	"testing"
+	"time"
+
+	"drainsight/alert"
+	"drainsight/detect"
+	"drainsight/scan"
+	"drainsight/store"
+)
+
+// The alert lifecycle across passes, through the state file: a finding is
+// new once, ongoing while it stays, cleared after alert.DefaultClearAfter
+// evaluations without it (one evaluation of a restriction at the limit
+// must not page twice), and a maintenance record clears it at once. The
+// lifecycle rules are the project's own (alert/lifecycle.go); the counts
+// checked here follow from them.
+func TestUpdateAlertsAcrossPasses(t *testing.T) {
+	st, err := store.Open(filepath.Join(t.TempDir(), "state.db"), time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	day := time.Date(2031, 3, 1, 0, 0, 0, 0, time.UTC)
+	block := detect.Finding{Tank: "B2", Kind: detect.KindRestriction, Subtype: "abrupt", MagnitudePct: -31}
+	stuck := detect.Finding{Tank: "B2", Kind: detect.KindSensorFault, Subtype: detect.SubStuck}
+	pass := func(d int, reset bool, fs ...detect.Finding) []alert.Event {
+		t.Helper()
+		at := day.Add(time.Duration(d) * 24 * time.Hour)
+		for i := range fs {
+			fs[i].DetectedAt = at
+		}
+		o := scan.Outcome{Tank: "B2", Reset: reset, Evals: []scan.Evaluation{{At: at, Findings: fs}}}
+		evs, err := scan.UpdateAlerts(st, []scan.Outcome{o})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return evs
+	}
+	status := func(evs []alert.Event) map[string]alert.Status {
+		m := map[string]alert.Status{}
+		for _, e := range evs {
+			m[alert.Key(e.Finding)] = e.Status
+		}
+		return m
+	}
+	bk, sk := alert.Key(block), alert.Key(stuck)
+	steps := []struct {
+		name  string
+		reset bool
+		fs    []detect.Finding
+		want  map[string]alert.Status
+	}{
+		{"both appear", false, []detect.Finding{block, stuck}, map[string]alert.Status{bk: alert.StatusNew, sk: alert.StatusNew}},
+		{"both stay", false, []detect.Finding{block, stuck}, map[string]alert.Status{bk: alert.StatusOngoing, sk: alert.StatusOngoing}},
+		{"stuck gone once", false, []detect.Finding{block}, map[string]alert.Status{bk: alert.StatusOngoing, sk: alert.StatusOngoing}},
+		{"stuck gone twice", false, []detect.Finding{block}, map[string]alert.Status{bk: alert.StatusOngoing, sk: alert.StatusOngoing}},
+		{"stuck gone three times", false, []detect.Finding{block}, map[string]alert.Status{bk: alert.StatusOngoing, sk: alert.StatusCleared}},
+		{"stuck back", false, []detect.Finding{block, stuck}, map[string]alert.Status{bk: alert.StatusOngoing, sk: alert.StatusNew}},
+		{"outlet cleaned", true, []detect.Finding{stuck}, map[string]alert.Status{bk: alert.StatusCleared, sk: alert.StatusOngoing}},
+		{"nothing left", false, nil, map[string]alert.Status{sk: alert.StatusOngoing}},
+	}
+	for d, s := range steps {
+		got := status(pass(d, s.reset, s.fs...))
+		for k, w := range s.want {
+			if got[k] != w {
+				t.Errorf("day %d (%s): %s is %q, want %q (all: %v)", d, s.name, k, got[k], w, got)
+			}
+		}
+		for k := range got {
+			if _, ok := s.want[k]; !ok {
+				t.Errorf("day %d (%s): unexpected event for %s: %q", d, s.name, k, got[k])
+			}
+		}
+	}
+	// The records are keyed by alert.IDOf in the state file: one per
+	// finding identity, the cleared restriction gone.
+	recs, err := st.Alerts("B2")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(recs) != 1 || recs[0].Key != store.AlertKey(alert.IDOf(stuck)) {
+		t.Errorf("stored records %v, want only the stuck reading's", recs)
+	}
+}
+
+// Evaluations of the replayed history are told as transitions only (a
+// second tank evaluated at the first instant with nothing to tell adds
+// nothing).
+func TestUpdateAlertsHistoryTransitionsOnly(t *testing.T) {
+	st, err := store.Open(filepath.Join(t.TempDir(), "state.db"), time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	d0 := time.Date(2031, 3, 1, 0, 0, 0, 0, time.UTC)
+	leak := detect.Finding{Tank: "C1", Kind: detect.KindTankLeak}
+	var evs []scan.Evaluation
+	for d := range 4 {
+		evs = append(evs, scan.Evaluation{At: d0.Add(time.Duration(d) * 24 * time.Hour), Findings: []detect.Finding{leak}})
+	}
+	got, err := scan.UpdateAlerts(st, []scan.Outcome{{Tank: "C1", Evals: evs}, {Tank: "C2", Evals: []scan.Evaluation{{At: d0}}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// day 0 new (a transition), days 1-2 ongoing (history: not told), day 3
+	// ongoing (the pass's own time: told)
+	if len(got) != 2 || got[0].Status != alert.StatusNew || got[1].Status != alert.StatusOngoing || !got[1].At.Equal(evs[3].At) {
+		t.Errorf("events %+v, want new at day 0 and ongoing at day 3", got)
+	}
+}
