@@ -70,6 +70,10 @@ type Plan struct {
 	// Linked: the outlet discharges into another tank, whose level above
 	// the outlet comes in Series.SubmergedM or from Run.Recv.
 	Linked bool
+	// WriteBack names the outbox sink that receives the tank's fits ("":
+	// none): each commit queues its fits in its own transaction (see
+	// Sender).
+	WriteBack string
 }
 
 // Run carries one tank through one pass: segmenter, fits, detector and the
@@ -390,8 +394,16 @@ func (r *Run) Commit(final bool, nowNs int64) (fits []model.Fit, err error) {
 		Samples:     r.cp.Samples + r.seen,
 		Drains:      r.cp.Drains + len(r.fresh),
 	}
+	var out []store.OutboxItem
+	if r.P.WriteBack != "" && len(r.fresh) > 0 {
+		it, err := fitsItem(r.P.WriteBack, r.P.ID, r.fresh, nowNs)
+		if err != nil {
+			return nil, fmt.Errorf("queue fits: %w", err)
+		}
+		out = append(out, it)
+	}
 	err = r.st.CommitTank(r.P.ID, store.TankCommit{
-		Fits: r.fresh, Idles: r.idles, DetectorState: blob, Checkpoint: &cp,
+		Fits: r.fresh, Idles: r.idles, DetectorState: blob, Checkpoint: &cp, Outbox: out,
 	})
 	if err != nil {
 		return nil, err

@@ -147,6 +147,10 @@ type TankCommit struct {
 	Checkpoint    *Checkpoint
 	ReplaceFromNs int64
 	ReplaceToNs   int64
+	// Outbox is queued in the same transaction (see OutboxItem): what
+	// must leave the process because of this commit, such as the fits'
+	// write-back, is never lost to a crash between the two.
+	Outbox []OutboxItem
 }
 
 // CommitTank writes c for tank in one transaction: either all of it is
@@ -225,7 +229,7 @@ func (s *Store) CommitTank(tank string, c TankCommit) error {
 				return err
 			}
 		}
-		return nil
+		return putOutbox(tx, c.Outbox)
 	})
 	if err != nil {
 		return fmt.Errorf("store: commit tank %q: %w", tank, err)

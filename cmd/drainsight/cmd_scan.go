@@ -47,6 +47,13 @@ its end is fitted as a partial drain if it meets the minimums, and no drain
 is held back. A tank's first InfluxDB scan reads 7 days;
 for more, run backfill (with --reanalyse once a tank has been scanned).
 
+For InfluxDB tanks the fits and active findings are written back to the
+site's server (influx.fits_measurement, influx.findings_measurement) from an
+outbox in the state file: a commit queues its fits in its own transaction,
+and a write the server refuses stays queued and is retried on later passes
+(backoff from 1 min to 1 h, dropped with a log line after 30 days); the
+summary says how many batches are pending.
+
 Running scan again over the same data fits nothing twice and repeats no alert.
 Exit status: 0 done, 1 error (a tank failed), 2 bad usage, 3 with
 --fail-on-findings when a tank finding is active (a feed notice is not one).`
@@ -354,6 +361,16 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 		fmt.Fprintf(w, "FAILED %s: %v\n", o.Tank, o.Err)
 	}
 	printFeeds(w, res.outcomes)
+	if d := res.writeBack; d.Delivered+d.Deferred+d.Expired+d.Pending > 0 {
+		fmt.Fprintf(w, "Write-back to InfluxDB: %d batches written, %d pending", d.Delivered, d.Pending)
+		if d.Expired > 0 {
+			fmt.Fprintf(w, ", %d expired undelivered (see the log)", d.Expired)
+		}
+		if d.LastError != "" {
+			fmt.Fprintf(w, "; failing: %s (kept in the state file and retried on the next passes)", d.LastError)
+		}
+		fmt.Fprintln(w, ".")
+	}
 	if len(res.events) == 0 {
 		fmt.Fprintln(w, "No findings.")
 	} else {

@@ -1,17 +1,25 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"math"
+	"net/http"
+	"net/http/httptest"
+	"net/http/httputil"
+	neturl "net/url"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"sort"
 	"strconv"
 	"strings"
+	"sync/atomic"
 	"syscall"
 	"testing"
 	"time"
+
+	"drainsight/ingest/influx"
 )
 
 // These tests need the real InfluxDB that scripts/influxd.sh starts; plain
@@ -100,7 +108,21 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	if start == "" || dir == "" {
 		t.Skip("server control not exported by scripts/influxd.sh")
 	}
-	cfg := filepath.Join(db, "demo.yaml")
+	// The backfill writes its fits back to a measurement of its own, so
+	// that what reaches InfluxDB is told from the demo scan's write-back.
+	demoCfg, err := os.ReadFile(filepath.Join(db, "demo.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	const backfillFits = "outlet_fit_backfill"
+	withMeas := strings.ReplaceAll(string(demoCfg), "      query_window: 24 h\n", "      query_window: 24 h\n      fits_measurement: "+backfillFits+"\n")
+	if withMeas == string(demoCfg) {
+		t.Fatal("demo.yaml has no query_window line to add fits_measurement after")
+	}
+	cfg := filepath.Join(t.TempDir(), "backfill.yaml")
+	if err := os.WriteFile(cfg, []byte(withMeas), 0o600); err != nil {
+		t.Fatal(err)
+	}
 	state := filepath.Join(t.TempDir(), "backfill.db")
 	done := make(chan error, 1)
 	go func() {
@@ -114,7 +136,7 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	if out, err := exec.Command(start).CombinedOutput(); err != nil {
 		t.Fatalf("restart influxd: %v: %s", err, out)
 	}
-	err := <-done
+	err = <-done
 	for attempt := 0; err != nil && attempt < 3; attempt++ {
 		t.Logf("backfill stopped (%v); resuming", err)
 		_, _, err = runArgs(t, "backfill", "--config", cfg, "--state", state, "--out", t.TempDir(),
@@ -153,6 +175,49 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	}
 	if bad := sameK(sk, dk, 1e-3); len(bad) > 0 {
 		t.Errorf("K after the outage differs by more than 0.1 %%: %v", head(bad))
+	}
+	// Write-back through the outbox: InfluxDB holds exactly the stored
+	// fits (one point per tank and end time; a repeat would overwrite, a
+	// loss shows as a missing point), and nothing is left queued.
+	pending, err := st.Pending("")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(pending) > 0 {
+		t.Errorf("%d write-back items still queued after the backfill completed: first %s (%s)", len(pending), pending[0].ID, pending[0].LastError)
+	}
+	c, err := influx.New(influx.Conn{URL: url, Bucket: bucket, Token: os.Getenv("DRAINSIGHT_INFLUX_TOKEN")}, influx.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer c.Close()
+	src, err := c.Source(influx.SeriesSpec{Measurement: backfillFits, Field: "k_m25s", TankTag: "tank"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ids []string
+	for tank := range tanks {
+		ids = append(ids, tank)
+	}
+	var written []string
+	if _, err := src.Pull(context.Background(), ids, 0, 1<<62, func(tank string, tNs int64, _ float64) {
+		written = append(written, fmt.Sprintf("%s|%d", tank, tNs))
+	}); err != nil {
+		t.Fatal(err)
+	}
+	var want []string
+	for tank := range tanks {
+		fits, _ := st.Fits(tank, 0, 1<<62)
+		for _, f := range fits {
+			want = append(want, fmt.Sprintf("%s|%d", tank, f.EndNs))
+		}
+	}
+	sort.Strings(written)
+	sort.Strings(want)
+	t.Logf("after the outage: %d fit points written back, %d fits stored", len(written), len(want))
+	if strings.Join(written, ",") != strings.Join(want, ",") {
+		t.Errorf("InfluxDB holds %d fit points of the backfill, the store %d fits\nonly in InfluxDB: %v\nonly stored: %v",
+			len(written), len(want), head(minus(written, want)), head(minus(want, written)))
 	}
 }
 
@@ -221,5 +286,114 @@ tanks:
 	}
 	if strings.Contains(err.Error(), "wrong-password") {
 		t.Errorf("the error shows the secret: %v", err)
+	}
+}
+
+// TestInfluxWriteRefusedThenDelivered puts a proxy in front of the test
+// server that answers every write with 503 while queries pass: the scan
+// still fits and stores every drain, keeps the write-back queued in the
+// state file and says so in its summary; once writes are accepted the next
+// scan delivers the queue, and InfluxDB then holds exactly the stored fits.
+func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
+	url, bucket := influxOrSkip(t)
+	db := t.TempDir()
+	if _, stderr, err := runArgs(t, "demo", "--out", db, "--days", "20", "--influx-url", url,
+		"--influx-bucket", bucket, "--influx-token-env", "DRAINSIGHT_INFLUX_TOKEN"); err != nil {
+		t.Fatalf("influx demo: %v\n%s", err, stderr)
+	}
+	target, err := neturl.Parse(url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var refuse atomic.Bool
+	refuse.Store(true)
+	var refused atomic.Int64
+	rp := httputil.NewSingleHostReverseProxy(target)
+	proxy := httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		if refuse.Load() && strings.Contains(r.URL.Path, "write") {
+			refused.Add(1)
+			http.Error(w, "writes paused for maintenance", http.StatusServiceUnavailable)
+			return
+		}
+		rp.ServeHTTP(w, r)
+	}))
+	defer proxy.Close()
+	demoCfg, err := os.ReadFile(filepath.Join(db, "demo.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	const meas = "outlet_fit_refused"
+	y := strings.ReplaceAll(string(demoCfg), "url: "+url, "url: "+proxy.URL)
+	y = strings.ReplaceAll(y, "      query_window: 24 h\n", "      query_window: 24 h\n      fits_measurement: "+meas+"\n")
+	if !strings.Contains(y, proxy.URL) || !strings.Contains(y, meas) {
+		t.Fatalf("demo.yaml not rewritten for the proxy:\n%s", y)
+	}
+	cfg := filepath.Join(t.TempDir(), "proxied.yaml")
+	if err := os.WriteFile(cfg, []byte(y), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	state := filepath.Join(t.TempDir(), "s.db")
+	out, stderr, err := runArgs(t, "backfill", "--config", cfg, "--state", state, "--out", t.TempDir(), "--since", "2026-01-01")
+	if err != nil {
+		t.Fatalf("backfill with writes refused failed (write-back must not fail the pass): %v\n%s", err, stderr)
+	}
+	st, err := openStore(state)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pending, _ := st.Pending("")
+	var ids []string
+	tankSet := map[string]bool{}
+	stored := 0
+	tanks, _ := st.Tanks()
+	for _, tank := range tanks {
+		fits, _ := st.Fits(tank, 0, 1<<62)
+		stored += len(fits)
+		if len(fits) > 0 && !tankSet[tank] {
+			tankSet[tank] = true
+			ids = append(ids, tank)
+		}
+	}
+	st.Close()
+	if stored < 20 || len(pending) == 0 || refused.Load() == 0 {
+		t.Fatalf("writes refused: %d fits stored, %d items queued, %d writes refused; want fits stored and queued", stored, len(pending), refused.Load())
+	}
+	t.Logf("writes refused: %d fits stored, %d write-back items queued, %d write requests refused", stored, len(pending), refused.Load())
+	if !strings.Contains(out, "Write-back to InfluxDB:") || !strings.Contains(out, "failing:") || strings.Contains(out, " 0 pending") {
+		t.Errorf("summary with writes refused does not say the write-back is pending and failing:\n%s", out)
+	}
+	refuse.Store(false)
+	// the next scheduled pass, past the failed item's backoff (1 min)
+	later := time.Now().Add(2 * time.Minute).UTC().Format(time.RFC3339)
+	out, stderr, err = runArgs(t, "scan", "--config", cfg, "--state", state, "--out", t.TempDir(), "--now", later)
+	if err != nil {
+		t.Fatalf("scan with writes accepted: %v\n%s", err, stderr)
+	}
+	if !strings.Contains(out, "Write-back to InfluxDB:") || !strings.Contains(out, " 0 pending") {
+		t.Errorf("summary after delivery does not say the queue is empty:\n%s", out)
+	}
+	st, err = openStore(state)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	if left, _ := st.Pending(""); len(left) != 0 {
+		t.Errorf("%d items still queued after writes were accepted", len(left))
+	}
+	c, err := influx.New(influx.Conn{URL: url, Bucket: bucket, Token: os.Getenv("DRAINSIGHT_INFLUX_TOKEN")}, influx.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer c.Close()
+	src, err := c.Source(influx.SeriesSpec{Measurement: meas, Field: "k_m25s", TankTag: "tank"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	n, err := src.Pull(context.Background(), ids, 0, 1<<62, func(string, int64, float64) {})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n != stored {
+		t.Errorf("InfluxDB holds %d fit points, the store %d fits", n, stored)
 	}
 }

@@ -8,7 +8,6 @@ import (
 	"sync"
 	"time"
 
-	"drainsight/detect"
 	"drainsight/ingest/influx"
 	"drainsight/model"
 	"drainsight/scan"
@@ -41,7 +40,7 @@ type pulledWindow struct {
 // window), feeds the samples to the tanks' segmenters and commits each tank
 // after every window, so an interrupted pass resumes where it stopped and a
 // failed window leaves the checkpoints of its tanks untouched.
-func (j *job) scanInflux(ctx context.Context, plans []*plan, now time.Time, opt scanOptions) []scan.Outcome {
+func (j *job) scanInflux(ctx context.Context, plans []*plan, now time.Time, opt scanOptions) ([]scan.Outcome, scan.Delivery) {
 	bySite := map[string][]*plan{}
 	var sites []string
 	for _, p := range plans {
@@ -51,21 +50,24 @@ func (j *job) scanInflux(ctx context.Context, plans []*plan, now time.Time, opt 
 		bySite[p.cfg.Site] = append(bySite[p.cfg.Site], p)
 	}
 	var outs []scan.Outcome
+	var wb scan.Delivery
 	for _, site := range sites {
-		outs = append(outs, j.scanSite(ctx, site, bySite[site], now, opt)...)
+		o, d := j.scanSite(ctx, site, bySite[site], now, opt)
+		outs = append(outs, o...)
+		wb.Add(d)
 	}
-	return outs
+	return outs, wb
 }
 
-func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now time.Time, opt scanOptions) []scan.Outcome {
+func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now time.Time, opt scanOptions) ([]scan.Outcome, scan.Delivery) {
 	site := j.cfg.Site(siteID)
 	c := j.clients[siteID]
-	fail := func(err error) []scan.Outcome {
+	fail := func(err error) ([]scan.Outcome, scan.Delivery) {
 		outs := make([]scan.Outcome, len(plans))
 		for i, p := range plans {
 			outs[i] = scan.Outcome{Tank: p.cfg.ID, Err: err}
 		}
-		return outs
+		return outs, scan.Delivery{}
 	}
 	if site == nil || site.Influx == nil || c == nil {
 		return fail(fmt.Errorf("site %q has no influx settings", siteID))
@@ -119,6 +121,17 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		tanks = append(tanks, t)
 	}
 	windows := influx.Windows(startNs, untilNs, ix.QueryWindow)
+	// Write-back runs beside the analysis from the outbox the commits fill:
+	// a server refusing writes delays neither the pull nor the fits.
+	// Its client retries a write only once: the outbox retries across
+	// rounds and passes, so a refusing server costs a round seconds, not
+	// the client's full backoff.
+	wc, err := influx.New(c.Conn(), influx.Options{WriteTimeout: ix.Timeout, Retry: influx.Retry{Attempts: 2}})
+	if err != nil {
+		return fail(err)
+	}
+	defer wc.Close()
+	wb := j.startWriteBack(ctx, siteID, influxSink{c: wc, site: siteID, fitsMeas: ix.FitsMeasurement, findingsMeas: ix.FindingsMeasurement}, now)
 
 	// Pipeline: one goroutine pulls window after window (one query each)
 	// while the tanks of the previous window are segmented, fitted and
@@ -206,14 +219,10 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 					return
 				}
 				t.out.Fits = append(t.out.Fits, fits...)
-				if len(fits) > 0 {
-					if err := c.WriteFits(ctx, ix.FitsMeasurement, fits, siteID); err != nil {
-						j.log.Warn("fit write-back failed", "tank", t.p.cfg.ID, "err", err)
-					}
-				}
 			}(t, pw.bufs[t.p.cfg.ID])
 		}
 		wg.Wait()
+		wb.kick()
 		if opt.progress != nil {
 			opt.progress(wi+1, len(windows), siteID)
 		}
@@ -230,12 +239,14 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				// While the data are missing the findings are withheld:
 				// what was written before stands, and a feed notice is the
 				// data path's condition, not an outlet finding.
-				j.writeFindings(ctx, c, ix.FindingsMeasurement, siteID, t.run.Det, ev.Findings)
+				if err := scan.QueueFindings(j.st, wb.name, t.run.Det, ev.Findings, now.UnixNano()); err != nil {
+					j.log.Warn("finding write-back not queued", "tank", t.p.cfg.ID, "err", err)
+				}
 			}
 		}
 		outs = append(outs, t.out)
 	}
-	return outs
+	return outs, wb.finish()
 }
 
 // levelSample is one reading of a tank's level above its bottom.
@@ -278,35 +289,5 @@ func linkWindow(tanks []*influxTank, byID map[string]*influxTank, bufs map[strin
 			n := b.Len() - 1
 			lastRecv[id] = levelSample{b.TimeNs[n], b.HeadM[n] + t.p.conv.OutletElevM}
 		}
-	}
-}
-
-// writeFindings writes the tank's active findings back (tags tank, site,
-// kind, subtype), stamped at the end of the tank's last drain (or its last
-// sample) so that re-writing overwrites.
-func (j *job) writeFindings(ctx context.Context, c *influx.Client, meas, site string, det *detect.State, fs []detect.Finding) {
-	if len(fs) == 0 {
-		return
-	}
-	at := det.LastFitNs
-	if at == 0 {
-		at = det.Sensor.LastSampleNs // a tank with no drain yet (a dead feed, say)
-	}
-	if at == 0 {
-		return
-	}
-	pts := make([]influx.Point, 0, len(fs))
-	for _, f := range fs {
-		pts = append(pts, influx.Point{
-			Measurement: meas,
-			Tags:        map[string]string{"tank": f.Tank, "site": site, "kind": f.Kind, "subtype": f.Subtype},
-			Fields: map[string]float64{"magnitude_pct": f.MagnitudePct, "value": f.Value,
-				"threshold": f.Threshold, "p_value": f.PValue},
-			StringFields: map[string]string{"statistic": f.Statistic, "evidence": f.Evidence},
-			TimeNs:       at,
-		})
-	}
-	if err := c.WritePoints(ctx, pts); err != nil {
-		j.log.Warn("finding write-back failed", "site", site, "err", err)
 	}
 }

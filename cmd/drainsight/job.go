@@ -113,6 +113,9 @@ type scanResult struct {
 	outcomes []scan.Outcome
 	ingest   ingest.Report
 	events   []alert.Event
+	// writeBack is what the pass delivered from the outbox to InfluxDB
+	// and what is still pending.
+	writeBack scan.Delivery
 }
 
 func (r *scanResult) fits() []model.Fit {
@@ -187,9 +190,11 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	for _, f := range fileOuts {
 		record(f.finish(now, opt.final || !opt.now.IsZero() && f.pastSettle(now)))
 	}
-	for _, o := range j.scanInflux(ctx, influxTanks, now, opt) {
+	influxOuts, wb := j.scanInflux(ctx, influxTanks, now, opt)
+	for _, o := range influxOuts {
 		record(o)
 	}
+	res.writeBack = wb
 	slices.SortFunc(outcomes, func(a, b scan.Outcome) int { return cmp.Compare(a.Tank, b.Tank) })
 	res.outcomes = outcomes
 	// The lifecycle runs even when the pass was interrupted: what was

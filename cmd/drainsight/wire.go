@@ -95,6 +95,9 @@ func buildPlan(ct config.Tank) (*plan, error) {
 		ID:     ct.ID,
 		Tank:   t,
 		Linked: ct.Outlet.DischargesInto != "",
+		// An InfluxDB tank's fits go back to its site's server through
+		// the outbox (influxscan.go).
+		WriteBack: writeBackSink(&ct),
 		Segment: model.SegmentOptions{
 			MinDropM:    d.MinDropM,
 			MinDuration: d.MinDrainDuration,
@@ -144,4 +147,13 @@ func openStore(path string) (*store.Store, error) {
 		return nil, err
 	}
 	return store.Open(path, 5*time.Second)
+}
+
+// writeBackSink is the outbox sink of a tank's write-back: its site's
+// InfluxDB, for tanks read from one ("" otherwise).
+func writeBackSink(ct *config.Tank) string {
+	if ct.Source.Format != "influx" {
+		return ""
+	}
+	return "influx:" + ct.Site
 }
