@@ -3,7 +3,6 @@ package alert
 import (
 	"bytes"
 	"context"
-	"encoding/json"
 	"fmt"
 	"os/exec"
 	"time"
@@ -21,13 +20,7 @@ func (n CommandNotifier) Notify(ctx context.Context, evs []Event) error {
 	if len(evs) == 0 || len(n.Argv) == 0 {
 		return nil
 	}
-	body := webhookBody{Source: "drainsight", Caution: Caution}
-	for _, e := range evs {
-		f := e.Finding
-		body.Events = append(body.Events, webhookEvent{Status: string(e.Status), At: e.At, Tank: f.Tank,
-			Kind: f.Kind, Subtype: f.Subtype, Onset: f.Onset, MagnitudePct: round(f.MagnitudePct, 2), Evidence: f.Evidence})
-	}
-	buf, err := json.Marshal(body)
+	buf, err := payload(evs)
 	if err != nil {
 		return fmt.Errorf("alert: command: %w", err)
 	}

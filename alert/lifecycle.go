@@ -70,6 +70,13 @@ func (id ID) String() string {
 	return id.Tank + "|" + id.Kind
 }
 
+// ID is the stable id of one transition: the finding's identity, the
+// status and the evaluation time ("tank|kind|new|2031-03-04T00:00:00Z").
+// Every delivery attempt of the transition carries the same id.
+func (e Event) ID() string {
+	return IDOf(e.Finding).String() + "|" + string(e.Status) + "|" + e.At.UTC().Format(time.RFC3339)
+}
+
 // Key is IDOf(f).String().
 func Key(f detect.Finding) string { return IDOf(f).String() }
 

@@ -69,6 +69,9 @@ type webhookBody struct {
 }
 
 type webhookEvent struct {
+	// ID is the transition's stable id (Event.ID): the same on every
+	// delivery attempt, so a receiver drops repeats on it.
+	ID           string    `json:"id"`
 	Status       string    `json:"status"`
 	At           time.Time `json:"at"`
 	Tank         string    `json:"tank"`
@@ -79,18 +82,23 @@ type webhookEvent struct {
 	Evidence     string    `json:"evidence"`
 }
 
+// payload is the document webhooks and commands receive (see README).
+func payload(evs []Event) ([]byte, error) {
+	body := webhookBody{Source: "drainsight", Caution: Caution}
+	for _, e := range evs {
+		f := e.Finding
+		body.Events = append(body.Events, webhookEvent{ID: e.ID(), Status: string(e.Status), At: e.At, Tank: f.Tank,
+			Kind: f.Kind, Subtype: f.Subtype, Onset: f.Onset, MagnitudePct: round(f.MagnitudePct, 2), Evidence: f.Evidence})
+	}
+	return json.Marshal(body)
+}
+
 // Notify implements Notifier.
 func (n WebhookNotifier) Notify(ctx context.Context, evs []Event) error {
 	if len(evs) == 0 {
 		return nil
 	}
-	body := webhookBody{Source: "drainsight", Caution: Caution}
-	for _, e := range evs {
-		f := e.Finding
-		body.Events = append(body.Events, webhookEvent{Status: string(e.Status), At: e.At, Tank: f.Tank,
-			Kind: f.Kind, Subtype: f.Subtype, Onset: f.Onset, MagnitudePct: round(f.MagnitudePct, 2), Evidence: f.Evidence})
-	}
-	buf, err := json.Marshal(body)
+	buf, err := payload(evs)
 	if err != nil {
 		return fmt.Errorf("alert: webhook: %w", err)
 	}
@@ -113,7 +121,7 @@ func (n WebhookNotifier) Notify(ctx context.Context, evs []Event) error {
 		}
 		req, err := http.NewRequestWithContext(ctx, http.MethodPost, n.URL, bytes.NewReader(buf))
 		if err != nil {
-			return fmt.Errorf("alert: webhook: bad url (setting outputs.webhook_url)")
+			return fmt.Errorf("alert: webhook: bad url (setting outputs.alert.webhook_url)")
 		}
 		req.Header.Set("Content-Type", "application/json")
 		resp, err := client.Do(req)
@@ -134,7 +142,7 @@ func (n WebhookNotifier) Notify(ctx context.Context, evs []Event) error {
 			last = fmt.Errorf("alert: webhook %s: status %d", host, resp.StatusCode)
 			continue
 		default:
-			return fmt.Errorf("alert: webhook %s: status %d (check outputs.webhook_url)", host, resp.StatusCode)
+			return fmt.Errorf("alert: webhook %s: status %d (check outputs.alert.webhook_url)", host, resp.StatusCode)
 		}
 	}
 	return last

@@ -17,7 +17,14 @@ import (
 // every event of the pass: transitions through the replayed history and the
 // state at the last evaluation. A failed tank contributes the evaluations
 // made before it failed.
-func UpdateAlerts(st *store.Store, outcomes []Outcome) ([]alert.Event, error) {
+//
+// The transitions to tell are queued for every sink of nt in the same
+// transaction (kind OutboxAlert, id sink|Event.ID()): those of the pass's
+// own evaluations and of the history within nt.Horizon of nt.Now, and
+// every clear of a tank whose maintenance records changed, however old
+// (a cleaning entered late still tells on-call staff). A Sender delivers
+// them.
+func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event, error) {
 	var prev []alert.Record
 	type slot struct {
 		tanks    []string
@@ -57,9 +64,11 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome) ([]alert.Event, error) {
 	}
 	slices.Sort(times)
 	tr := alert.NewTracker(prev)
+	reset := map[string]bool{}
 	for _, o := range outcomes {
 		if o.Reset && o.Err == nil {
 			tr.ResetTank(o.Tank)
+			reset[o.Tank] = true
 		}
 	}
 	var evs []alert.Event
@@ -86,11 +95,45 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome) ([]alert.Event, error) {
 			del = append(del, storeKey(r.Finding))
 		}
 	}
-	if err := st.UpdateAlerts(put, del); err != nil {
+	var out []store.OutboxItem
+	if len(nt.Sinks) > 0 {
+		horizon := nt.Horizon
+		if horizon <= 0 {
+			horizon = DefaultNotifyHorizon
+		}
+		for _, e := range alert.Notifiable(evs) {
+			if e.At.Before(nt.Now.Add(-horizon)) && !(e.Status == alert.StatusCleared && reset[e.Finding.Tank]) {
+				continue // older history: recorded in findings.jsonl, not sent
+			}
+			data, err := EncodeGob(e)
+			if err != nil {
+				return nil, err
+			}
+			for _, sink := range nt.Sinks {
+				out = append(out, store.OutboxItem{ID: sink + "|" + e.ID(), Sink: sink, Kind: OutboxAlert,
+					Data: data, QueuedNs: nt.Now.UnixNano()})
+			}
+		}
+	}
+	if err := st.UpdateAlerts(put, del, out...); err != nil {
 		return nil, err
 	}
 	return evs, nil
 }
+
+// Notify says where UpdateAlerts queues the transitions to tell.
+type Notify struct {
+	// Sinks are the outbox sinks, one per configured notifier.
+	Sinks []string
+	// Horizon: a transition of the replayed history older than this
+	// before Now is recorded but not sent (nobody can act on a day-old
+	// page); 0 means DefaultNotifyHorizon.
+	Horizon time.Duration
+	Now     time.Time
+}
+
+// DefaultNotifyHorizon is how old a transition may be and still be sent.
+const DefaultNotifyHorizon = 24 * time.Hour
 
 // storeKey is the state file's key of a finding's lifecycle record: its
 // alert.ID.

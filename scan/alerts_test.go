@@ -2,6 +2,7 @@ package scan_test
 
 import (
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -33,7 +34,7 @@ func TestUpdateAlertsAcrossPasses(t *testing.T) {
 			fs[i].DetectedAt = at
 		}
 		o := scan.Outcome{Tank: "B2", Reset: reset, Evals: []scan.Evaluation{{At: at, Findings: fs}}}
-		evs, err := scan.UpdateAlerts(st, []scan.Outcome{o})
+		evs, err := scan.UpdateAlerts(st, []scan.Outcome{o}, scan.Notify{})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -101,7 +102,7 @@ func TestUpdateAlertsHistoryTransitionsOnly(t *testing.T) {
 	for d := range 4 {
 		evs = append(evs, scan.Evaluation{At: d0.Add(time.Duration(d) * 24 * time.Hour), Findings: []detect.Finding{leak}})
 	}
-	got, err := scan.UpdateAlerts(st, []scan.Outcome{{Tank: "C1", Evals: evs}, {Tank: "C2", Evals: []scan.Evaluation{{At: d0}}}})
+	got, err := scan.UpdateAlerts(st, []scan.Outcome{{Tank: "C1", Evals: evs}, {Tank: "C2", Evals: []scan.Evaluation{{At: d0}}}}, scan.Notify{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -110,4 +111,56 @@ func TestUpdateAlertsHistoryTransitionsOnly(t *testing.T) {
 	if len(got) != 2 || got[0].Status != alert.StatusNew || got[1].Status != alert.StatusOngoing || !got[1].At.Equal(evs[3].At) {
 		t.Errorf("events %+v, want new at day 0 and ongoing at day 3", got)
 	}
+}
+
+// The transitions to tell are queued with the lifecycle records: the
+// pass's own, none of the replayed history older than the horizon, but a
+// clear caused by a maintenance record entered late however old it is.
+func TestUpdateAlertsQueuesNotifications(t *testing.T) {
+	st, err := store.Open(filepath.Join(t.TempDir(), "state.db"), time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	d0 := time.Date(2031, 3, 1, 0, 0, 0, 0, time.UTC)
+	day := func(n int) time.Time { return d0.Add(time.Duration(n) * 24 * time.Hour) }
+	block := detect.Finding{Tank: "S4", Kind: detect.KindRestriction}
+	old := detect.Finding{Tank: "S5", Kind: detect.KindTankLeak}
+	nt := scan.Notify{Sinks: []string{"notify:a", "notify:b"}, Now: day(3)}
+	// S4: new on day 1 (history, 2 days old: not told) and still there on
+	// day 3; S5: new on day 3 (told)
+	_, err = scan.UpdateAlerts(st, []scan.Outcome{
+		{Tank: "S4", Evals: []scan.Evaluation{{At: day(1), Findings: []detect.Finding{block}}, {At: day(3), Findings: []detect.Finding{block}}}},
+		{Tank: "S5", Evals: []scan.Evaluation{{At: day(3), Findings: []detect.Finding{old}}}},
+	}, nt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	q, _ := st.Pending("notify:a")
+	if len(q) != 1 || !strings.Contains(q[0].ID, "S5|tank_leak|new|") {
+		t.Fatalf("queued %v, want only S5's new leak", ids(q))
+	}
+	if qb, _ := st.Pending("notify:b"); len(qb) != 1 {
+		t.Errorf("second notifier: %d queued, want 1", len(qb))
+	}
+	st.Delivered(q...)
+	// a cleaning of S4 recorded late: the replay from day 2 clears the
+	// restriction at day 2, four days before now, and that is told
+	_, err = scan.UpdateAlerts(st, []scan.Outcome{{Tank: "S4", Reset: true, Evals: []scan.Evaluation{{At: day(2)}, {At: day(6)}}}},
+		scan.Notify{Sinks: []string{"notify:a"}, Now: day(6)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	q, _ = st.Pending("notify:a")
+	if len(q) != 1 || !strings.Contains(q[0].ID, "S4|restriction|cleared|") {
+		t.Errorf("queued %v after the late maintenance record, want S4's clear", ids(q))
+	}
+}
+
+func ids(items []store.OutboxItem) []string {
+	var out []string
+	for _, it := range items {
+		out = append(out, it.ID)
+	}
+	return out
 }

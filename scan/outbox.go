@@ -7,6 +7,7 @@ import (
 	"log/slog"
 	"time"
 
+	"drainsight/alert"
 	"drainsight/detect"
 	"drainsight/model"
 	"drainsight/store"
@@ -20,6 +21,9 @@ const (
 	// OutboxFindings holds a tank's active findings at one evaluation
 	// (FindingsAt, gob); one item per tank, each pass's replacing the last.
 	OutboxFindings = "findings"
+	// OutboxAlert holds one alert transition to notify (alert.Event,
+	// gob), queued per notifier with the lifecycle records that made it.
+	OutboxAlert = "alert"
 )
 
 // FindingsAt is the payload of an OutboxFindings item: the tank's active
@@ -70,12 +74,58 @@ func QueueFindings(st *store.Store, sink string, det *detect.State, fs []detect.
 	})
 }
 
-// Sink receives the queued side effects of one destination (a site's
+// Sink receives the queued write-back of one destination (a site's
 // InfluxDB). Writing the same item twice must be harmless: the points
 // written carry stable series and times, so a repeat overwrites.
 type Sink interface {
 	WriteFits(ctx context.Context, fits []model.Fit) error
 	WriteFindings(ctx context.Context, f FindingsAt) error
+}
+
+// Destination sends one queued item; the Sender calls it.
+type Destination interface {
+	Send(ctx context.Context, it store.OutboxItem) error
+}
+
+// WriteBackTo is the Destination of a write-back Sink (items OutboxFits
+// and OutboxFindings).
+func WriteBackTo(s Sink) Destination { return writeBackDest{s} }
+
+// NotifyTo is the Destination of a notifier (items OutboxAlert, one
+// transition each).
+func NotifyTo(n alert.Notifier) Destination { return notifyDest{n} }
+
+type writeBackDest struct{ s Sink }
+
+func (d writeBackDest) Send(ctx context.Context, it store.OutboxItem) error {
+	switch it.Kind {
+	case OutboxFits:
+		var fits []model.Fit
+		if err := DecodeGob(it.Data, &fits); err != nil {
+			return fmt.Errorf("outbox item %s: %w", it.ID, err)
+		}
+		return d.s.WriteFits(ctx, fits)
+	case OutboxFindings:
+		var f FindingsAt
+		if err := DecodeGob(it.Data, &f); err != nil {
+			return fmt.Errorf("outbox item %s: %w", it.ID, err)
+		}
+		return d.s.WriteFindings(ctx, f)
+	}
+	return fmt.Errorf("outbox item %s: kind %q is not a write-back", it.ID, it.Kind)
+}
+
+type notifyDest struct{ n alert.Notifier }
+
+func (d notifyDest) Send(ctx context.Context, it store.OutboxItem) error {
+	if it.Kind != OutboxAlert {
+		return fmt.Errorf("outbox item %s: kind %q is not a notification", it.ID, it.Kind)
+	}
+	var e alert.Event
+	if err := DecodeGob(it.Data, &e); err != nil {
+		return fmt.Errorf("outbox item %s: %w", it.ID, err)
+	}
+	return d.n.Notify(ctx, []alert.Event{e})
 }
 
 // Sender drains the outbox of the state file into sinks.
@@ -130,7 +180,7 @@ func (d *Delivery) Add(e Delivery) {
 // next round (on this run or a later one). Expired items are dropped
 // first. The error is the store's, never the sink's (a sink failure is
 // counted in the Delivery).
-func (s *Sender) Deliver(ctx context.Context, name string, sink Sink, now time.Time) (Delivery, error) {
+func (s *Sender) Deliver(ctx context.Context, name string, to Destination, now time.Time) (Delivery, error) {
 	var d Delivery
 	items, err := s.Store.Pending(name)
 	if err != nil {
@@ -167,13 +217,13 @@ func (s *Sender) Deliver(ctx context.Context, name string, sink Sink, now time.T
 		if it.NextNs > nowNs || ctx.Err() != nil {
 			continue
 		}
-		if err := s.send(ctx, sink, it); err != nil {
+		if err := to.Send(ctx, it); err != nil {
 			if ctx.Err() != nil {
 				break // cut short by the caller: not the item's failure
 			}
 			d.Deferred++
 			d.LastError = err.Error()
-			s.log().Warn("write-back deferred", "sink", name, "item", it.ID, "attempt", it.Attempts+1, "err", err)
+			s.log().Warn("delivery deferred", "sink", name, "item", it.ID, "attempt", it.Attempts+1, "err", err)
 			if derr := s.Store.Deferred(it.ID, nowNs+int64(backoff(it.Attempts+1)), err.Error()); derr != nil && !errors.Is(derr, store.ErrNotQueued) {
 				return d, derr
 			}
@@ -187,24 +237,6 @@ func (s *Sender) Deliver(ctx context.Context, name string, sink Sink, now time.T
 	}
 	d.Pending = left
 	return d, nil
-}
-
-func (s *Sender) send(ctx context.Context, sink Sink, it store.OutboxItem) error {
-	switch it.Kind {
-	case OutboxFits:
-		var fits []model.Fit
-		if err := DecodeGob(it.Data, &fits); err != nil {
-			return fmt.Errorf("outbox item %s: %w", it.ID, err)
-		}
-		return sink.WriteFits(ctx, fits)
-	case OutboxFindings:
-		var f FindingsAt
-		if err := DecodeGob(it.Data, &f); err != nil {
-			return fmt.Errorf("outbox item %s: %w", it.ID, err)
-		}
-		return sink.WriteFindings(ctx, f)
-	}
-	return fmt.Errorf("outbox item %s: unknown kind %q", it.ID, it.Kind)
 }
 
 func (s *Sender) log() *slog.Logger {

@@ -65,7 +65,7 @@ func TestWriteBackThroughOutbox(t *testing.T) {
 	sink := &fakeSink{down: true, fits: map[int64]int{}}
 	now := time.Unix(0, end)
 	snd := &scan.Sender{Store: st}
-	d, err := snd.Deliver(context.Background(), "influx:test", sink, now)
+	d, err := snd.Deliver(context.Background(), "influx:test", scan.WriteBackTo(sink), now)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -75,11 +75,11 @@ func TestWriteBackThroughOutbox(t *testing.T) {
 	// back up, but the failed item waits for its backoff (1 min): the
 	// others go
 	sink.down = false
-	d, _ = snd.Deliver(context.Background(), "influx:test", sink, now.Add(30*time.Second))
+	d, _ = snd.Deliver(context.Background(), "influx:test", scan.WriteBackTo(sink), now.Add(30*time.Second))
 	if d.Delivered != len(queued)-1 || d.Pending != 1 {
 		t.Errorf("within the backoff: %+v, want all but the deferred item delivered", d)
 	}
-	d, _ = snd.Deliver(context.Background(), "influx:test", sink, now.Add(2*time.Minute))
+	d, _ = snd.Deliver(context.Background(), "influx:test", scan.WriteBackTo(sink), now.Add(2*time.Minute))
 	if d.Delivered != 1 || d.Pending != 0 {
 		t.Errorf("after the backoff: %+v, want the last item delivered", d)
 	}
@@ -111,7 +111,7 @@ func TestOutboxExpiryAndFindingsReplace(t *testing.T) {
 	}
 	snd := &scan.Sender{Store: st, MaxAge: 48 * time.Hour}
 	sink := &fakeSink{fits: map[int64]int{}}
-	d, err := snd.Deliver(context.Background(), "s", sink, t0.Add(72*time.Hour))
+	d, err := snd.Deliver(context.Background(), "s", scan.WriteBackTo(sink), t0.Add(72*time.Hour))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -129,7 +129,7 @@ func TestOutboxExpiryAndFindingsReplace(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
-	d, _ = snd.Deliver(context.Background(), "s", sink, t0.Add(3*time.Hour))
+	d, _ = snd.Deliver(context.Background(), "s", scan.WriteBackTo(sink), t0.Add(3*time.Hour))
 	if d.Delivered != 1 || sink.findings != 2 {
 		t.Errorf("%+v, %d findings written: want one item, the second pass's 2 findings", d, sink.findings)
 	}

@@ -574,10 +574,14 @@ type AlertRecord struct {
 	Data []byte
 }
 
-// UpdateAlerts stores put and deletes del in one transaction. Deleting a key
-// that does not exist is not an error.
-func (s *Store) UpdateAlerts(put []AlertRecord, del []AlertKey) error {
+// UpdateAlerts stores put, deletes del and queues out (the notifications of
+// the transitions put records) in one transaction. Deleting a key that does
+// not exist is not an error.
+func (s *Store) UpdateAlerts(put []AlertRecord, del []AlertKey, out ...OutboxItem) error {
 	err := s.db.Update(func(tx *bolt.Tx) error {
+		if err := putOutbox(tx, out); err != nil {
+			return err
+		}
 		b := tx.Bucket(bucketAlerts)
 		for _, r := range put {
 			k, err := r.Key.bytes()

@@ -54,9 +54,15 @@ and a write the server refuses stays queued and is retried on later passes
 (backoff from 1 min to 1 h, dropped with a log line after 30 days); the
 summary says how many batches are pending.
 
+The transitions to notify are queued in the state file with the alert records
+and sent after the pass, one per request with a stable id; a notifier that
+fails keeps them for the next passes (backoff 1 min to 1 h, dropped with a
+log line after 30 days).
+
 Running scan again over the same data fits nothing twice and repeats no alert.
-Exit status: 0 done, 1 error (a tank failed), 2 bad usage, 3 with
---fail-on-findings when a tank finding is active (a feed notice is not one).`
+Exit status: 0 done, 1 error (a tank failed, or notifications are still
+pending), 2 bad usage, 3 with --fail-on-findings when a tank finding is active
+(a feed notice is not one).`
 
 // runScan implements "drainsight scan".
 func runScan(ctx context.Context, e *env, args []string) error {
@@ -126,13 +132,16 @@ func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath
 	if err != nil {
 		return res, err
 	}
-	// Notify before anything else can fail: the lifecycle already recorded
-	// these transitions and will not offer them again.
-	notifyAll(ctx, cfg, log, res.now, res.events)
+	// The lifecycle queued its transitions in the state file with its
+	// records: they are sent now, or on a later pass if a notifier fails.
+	res.notified = j.deliverNotifications(ctx, res.now)
 	if err := writeOutputs(outDir, res); err != nil {
 		return res, err
 	}
 	printSummary(e.stdout, res, outDir, time.Since(start))
+	if res.notified.Pending > 0 {
+		return res, errNotificationsPending{res.notified}
+	}
 	return res, nil
 }
 
@@ -302,47 +311,6 @@ func writeJSONL(path string, recs []any) error {
 	return os.Rename(tmp.Name(), path)
 }
 
-// notifyHorizon is how old a transition may be and still be notified.
-const notifyHorizon = 24 * time.Hour
-
-// notifyAll sends new and cleared findings to every configured notifier. A
-// notifier that fails is logged; the findings stay in the state and in
-// findings.jsonl.
-func notifyAll(ctx context.Context, cfg *config.Config, log *slog.Logger, now time.Time, evs []alert.Event) {
-	// Transitions found while replaying older history are recorded in
-	// findings.jsonl but not sent: nobody can act on a day-old page.
-	var send []alert.Event
-	for _, e := range alert.Notifiable(evs) {
-		if !e.At.Before(now.Add(-notifyHorizon)) {
-			send = append(send, e)
-		}
-	}
-	if len(send) == 0 {
-		return
-	}
-	var ns []alert.Notifier
-	if cfg.Outputs.Alert.Log {
-		ns = append(ns, alert.LogNotifier{Logger: log})
-	}
-	url := cfg.Outputs.Alert.WebhookURL
-	if env := cfg.Outputs.Alert.WebhookURLEnv; env != "" {
-		if url = os.Getenv(env); url == "" {
-			log.Error("webhook not sent: environment variable is empty or unset", "variable", env)
-		}
-	}
-	if url != "" {
-		ns = append(ns, alert.WebhookNotifier{URL: url})
-	}
-	if len(cfg.Outputs.Alert.Command) > 0 {
-		ns = append(ns, alert.CommandNotifier{Argv: cfg.Outputs.Alert.Command})
-	}
-	for _, n := range ns {
-		if err := n.Notify(ctx, send); err != nil {
-			log.Error("notification failed", "notifier", fmt.Sprintf("%T", n), "err", err)
-		}
-	}
-}
-
 func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duration) {
 	var samples int64
 	drains, fits := 0, 0
@@ -361,6 +329,16 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 		fmt.Fprintf(w, "FAILED %s: %v\n", o.Tank, o.Err)
 	}
 	printFeeds(w, res.outcomes)
+	if d := res.notified; d.Pending+d.Expired > 0 {
+		fmt.Fprintf(w, "Notifications: %d sent, %d pending", d.Delivered, d.Pending)
+		if d.Expired > 0 {
+			fmt.Fprintf(w, ", %d expired undelivered (see the log)", d.Expired)
+		}
+		if d.LastError != "" {
+			fmt.Fprintf(w, "; failing: %s", d.LastError)
+		}
+		fmt.Fprintln(w, " (kept in the state file and retried on the next passes).")
+	}
 	if d := res.writeBack; d.Delivered+d.Deferred+d.Expired+d.Pending > 0 {
 		fmt.Fprintf(w, "Write-back to InfluxDB: %d batches written, %d pending", d.Delivered, d.Pending)
 		if d.Expired > 0 {

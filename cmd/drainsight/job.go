@@ -29,6 +29,8 @@ type job struct {
 	log     *slog.Logger
 	clients map[string]*influx.Client // per site id, only sites with InfluxDB
 	workers int
+	// notifiers by outbox sink name (notify.go)
+	notifiers map[string]alert.Notifier
 }
 
 // openJob loads nothing itself: it wires a loaded config into a job and
@@ -50,7 +52,8 @@ func openJob(cfg *config.Config, statePath string, log *slog.Logger) (*job, erro
 		closeClients(clients)
 		return nil, err
 	}
-	return &job{cfg: cfg, plans: plans, st: st, log: log, clients: clients, workers: 2}, nil
+	return &job{cfg: cfg, plans: plans, st: st, log: log, clients: clients, workers: 2,
+		notifiers: notifiers(cfg.Outputs.Alert, log)}, nil
 }
 
 // openClients opens one InfluxDB client per site that has a server; the
@@ -114,8 +117,9 @@ type scanResult struct {
 	ingest   ingest.Report
 	events   []alert.Event
 	// writeBack is what the pass delivered from the outbox to InfluxDB
-	// and what is still pending.
+	// and what is still pending; notified the same for notifications.
 	writeBack scan.Delivery
+	notified  scan.Delivery
 }
 
 func (r *scanResult) fits() []model.Fit {
@@ -199,7 +203,7 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	res.outcomes = outcomes
 	// The lifecycle runs even when the pass was interrupted: what was
 	// committed and evaluated is reported.
-	evs, err := scan.UpdateAlerts(j.st, outcomes)
+	evs, err := scan.UpdateAlerts(j.st, outcomes, j.notifyPlan(now))
 	res.events = evs
 	if ferr := scan.PutFeeds(j.st, outcomes); ferr != nil {
 		err = errors.Join(err, ferr)

@@ -72,7 +72,7 @@ func (j *job) startWriteBack(ctx context.Context, site string, sink scan.Sink, n
 			if failed {
 				continue
 			}
-			d, err := sender.Deliver(dctx, wb.name, sink, now)
+			d, err := sender.Deliver(dctx, wb.name, scan.WriteBackTo(sink), now)
 			if err != nil {
 				j.log.Error("write-back outbox", "site", site, "err", err)
 			}

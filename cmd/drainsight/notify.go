@@ -1,0 +1,84 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"log/slog"
+	"maps"
+	"os"
+	"slices"
+	"time"
+
+	"drainsight/alert"
+	"drainsight/config"
+	"drainsight/scan"
+)
+
+// notifiers returns the configured notifiers by outbox sink name. Each is
+// its own sink: a webhook that is down holds back neither the log nor the
+// command.
+func notifiers(a config.AlertSettings, log *slog.Logger) map[string]alert.Notifier {
+	ns := map[string]alert.Notifier{}
+	if a.Log {
+		ns["notify:log"] = alert.LogNotifier{Logger: log}
+	}
+	switch {
+	case a.WebhookURLEnv != "":
+		ns["notify:webhook"] = webhookFromEnv{env: a.WebhookURLEnv}
+	case a.WebhookURL != "":
+		ns["notify:webhook"] = alert.WebhookNotifier{URL: a.WebhookURL}
+	}
+	if len(a.Command) > 0 {
+		ns["notify:command"] = alert.CommandNotifier{Argv: a.Command}
+	}
+	return ns
+}
+
+// webhookFromEnv reads the webhook's URL from its environment variable at
+// each delivery: an unset variable fails the delivery (the transition stays
+// queued) with a message naming the setting, never the URL.
+type webhookFromEnv struct{ env string }
+
+func (w webhookFromEnv) Notify(ctx context.Context, evs []alert.Event) error {
+	url := os.Getenv(w.env)
+	if url == "" {
+		return fmt.Errorf("alert: webhook not sent: environment variable %s (setting outputs.alert.webhook_url_env) is empty or unset", w.env)
+	}
+	return alert.WebhookNotifier{URL: url}.Notify(ctx, evs)
+}
+
+// notifyPlan is where this pass's transitions are queued.
+func (j *job) notifyPlan(now time.Time) scan.Notify {
+	return scan.Notify{Sinks: slices.Sorted(maps.Keys(j.notifiers)), Now: now}
+}
+
+// deliverNotifications sends the queued transitions (this pass's and any
+// left by earlier ones) to every notifier, and returns what is sent and
+// still pending.
+func (j *job) deliverNotifications(ctx context.Context, now time.Time) scan.Delivery {
+	var total scan.Delivery
+	snd := &scan.Sender{Store: j.st, Log: j.log}
+	for _, name := range slices.Sorted(maps.Keys(j.notifiers)) {
+		d, err := snd.Deliver(ctx, name, scan.NotifyTo(j.notifiers[name]), now)
+		if err != nil {
+			j.log.Error("notification outbox", "notifier", name, "err", err)
+		}
+		if d.LastError != "" {
+			d.LastError = name + ": " + d.LastError
+		}
+		total.Add(d)
+	}
+	return total
+}
+
+// errNotificationsPending is the pass's error while transitions wait in
+// the outbox: the scan did its work, but on-call staff have not been told.
+type errNotificationsPending struct{ d scan.Delivery }
+
+func (e errNotificationsPending) Error() string {
+	msg := fmt.Sprintf("%d notifications pending in the state file (retried on the next passes)", e.d.Pending)
+	if e.d.LastError != "" {
+		msg += "; last failure: " + e.d.LastError
+	}
+	return msg
+}
