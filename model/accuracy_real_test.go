@@ -133,3 +133,28 @@ func TestFitSensorLag(t *testing.T) {
 		t.Errorf("lag configured: K %g [%g, %g], true %g", f.KM25s, f.KLo95M25s, f.KHi95M25s, k)
 	}
 }
+
+// A complete cone drain read through a 5 s lag: at the apex the level
+// falls as (T-t)^0.4, fastest in the last sampling interval, where a
+// straight line between the samples misplaces the lag's input. With the
+// interval filtered in sub-steps the noise-free reading (the simulator's
+// Runge-Kutta integration) gives K to 0.005 %; the straight-line hold gave
+// 0.015 % off here, and -0.036 % on average at 2 mm in the realistic study
+// (63.5 % coverage).
+func TestFitSensorLagConeApex(t *testing.T) {
+	tank, k, h0, _ := accuracyTank("cone")
+	ht, _ := NewHeadTransform(tank)
+	clean := cleanReading(ht, func(float64) float64 { return k }, h0, 10, ht.DrainTimeS(k, h0, 0), 5)
+	var seg Segment
+	disturb(&seg, clean, 10, 1e-7, Disturbance{}, rand.New(rand.NewPCG(1, 2)))
+	seg.Tank, seg.Kind, seg.EmptyHeadM, seg.Complete = "cone", Drain, 0, true
+	lagged := *tank
+	lagged.SensorLagS = 5
+	f, err := FitDrain(&lagged, &seg, FitOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if e := math.Abs(f.KM25s/k - 1); e > 5e-5 {
+		t.Errorf("cone apex through a 5 s lag: K off by %.4f %%, want within 0.005 %%", 100*e)
+	}
+}

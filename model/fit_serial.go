@@ -50,6 +50,7 @@ import (
 //     Cov(e_i, e_j) = γ ρ^{|t_i-t_j|/Δ} + σw^2 δ_ij. The double sum is O(N): with the forward
 //     filter P_i = x_i + φ_i P_{i-1}, Σ_ij x_i x_jᵀ ρ^{|t_i-t_j|/Δ} =
 //     Σ_i x_i P_iᵀ + (Σ_i x_i P_iᵀ)ᵀ - A.
+//
 //  2. What the autoregression leaves is measured on the standardised
 //     innovations by Newey & West (1987), "A simple, positive semi-definite,
 //     heteroskedasticity and autocorrelation consistent covariance matrix",
@@ -58,6 +59,17 @@ import (
 //     covariance matrix estimation", Econometrica 59(3), AR(1) plug-in
 //     (floored at the rule of Newey & West 1994, Rev. Econ. Stud. 61(4)).
 //     Their long-run to short-run variance ratio λ, floored at 1, scales Ω.
+//
+//  3. The residuals are the errors less what the fit absorbed, r = (I-H)e
+//     with H the hat matrix, so E rᵀr = tr((I-H)Σ) (the expectation of a
+//     quadratic form, Searle 1971, "Linear Models", §2.5), not N γ: with
+//     correlation the fit's columns (a level, a slope, a curve) soak up far
+//     more than p of the N unit variances, tr(HΣ) = tr(A^-1 S) with
+//     S = Σ_ij x_i x_jᵀ Cov(e_i, e_j) (the double sum above). Both parts of
+//     Ω are raised by N / (N - tr(HΣ)), with white errors the usual
+//     N/(N-p). On drains a few correlation times long this is most of the
+//     variance (AR(1) ρ 0.99 over 55-108 samples: coverage 87-92 % without,
+//     93.5-98 % with; TestRealisticStudy).
 //
 // The correction applies only when the residual autocorrelation is
 // significant, ρ̂ > 2/sqrt(N) (about a 2.5 % one-sided test under white
@@ -192,6 +204,24 @@ func serialCov(tt, r, cols []float64, np, na int, ata, dtBuf []float64) serialFi
 			}
 		}
 	}
+	// The residuals are the errors less what the fit absorbed (step 3 of
+	// the type's comment).
+	if inv, ok := lsq.InverseSPD(ata, na); ok {
+		var tr float64
+		for a := range na {
+			for b := range na {
+				sab := s[a*na+b] + s[b*na+a] - ata[a*na+b]
+				tr += inv[b*na+a] * (gAR*sab + whiteM2*ata[a*na+b])
+			}
+		}
+		tr /= gAR + whiteM2
+		if tr < fn-fp-1 {
+			c := fn / (fn - tr)
+			gAR *= c
+			whiteM2 *= c
+		}
+	}
+	out.Gamma0 = gAR
 	omega := make([]float64, na*na)
 	for a := range na {
 		for b := range na {
