@@ -382,10 +382,14 @@ func (r *Run) Commit(final bool, nowNs int64) (fits []model.Fit, err error) {
 	}
 	// UpdatedNs is the evaluation time of the pass, written only by its
 	// final commit: a pass interrupted after some windows leaves the old
-	// one, so that the next pass evaluates the midnights it re-reads.
+	// one, so that the next pass evaluates the midnights it re-reads. It is
+	// never later than the data the pass read: a pass that read nothing
+	// keeps the old one, and one evaluated past the end of its data (the
+	// clock, --now) records the data's end, so that history arriving late
+	// is still evaluated midnight by midnight as if it had come on time.
 	updated := r.PrevEvalNs
-	if final {
-		updated = nowNs
+	if final && r.LastNs > 0 {
+		updated = max(r.PrevEvalNs, min(nowNs, r.LastNs))
 	}
 	cp := store.Checkpoint{
 		CommittedNs: committed,

@@ -121,8 +121,9 @@ func keyTime(k []byte) int64 { return int64(binary.BigEndian.Uint64(k) ^ (1 << 6
 // time < CommittedNs has been read, and every drain and idle period that ended
 // before it is in the store. ResumeNs (<= CommittedNs) is where the next pull
 // must start so that a drain still open at CommittedNs is seen whole; it
-// equals CommittedNs when nothing was open. UpdatedNs is the wall-clock time
-// of the commit as passed by the caller (the store reads no clock). Samples
+// equals CommittedNs when nothing was open. UpdatedNs is the evaluation time
+// of the last pass that completed, as passed by the caller (the store reads
+// no clock; the scan never records one later than the data it read). Samples
 // and Drains count what the scan that wrote this checkpoint saw, for status
 // pages.
 type Checkpoint struct {
