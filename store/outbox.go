@@ -60,7 +60,7 @@ func putOutbox(tx *bolt.Tx, items []OutboxItem) error {
 		if err != nil {
 			return err
 		}
-		if err := b.Put([]byte(items[i].ID), v); err != nil {
+		if err := put(b, []byte(items[i].ID), v); err != nil {
 			return err
 		}
 	}
@@ -70,7 +70,7 @@ func putOutbox(tx *bolt.Tx, items []OutboxItem) error {
 // Enqueue queues items in one transaction; an item whose ID is queued
 // already replaces it.
 func (s *Store) Enqueue(items ...OutboxItem) error {
-	if err := s.db.Update(func(tx *bolt.Tx) error { return putOutbox(tx, items) }); err != nil {
+	if err := s.update(func(tx *bolt.Tx) error { return putOutbox(tx, items) }); err != nil {
 		return fmt.Errorf("store: enqueue: %w", err)
 	}
 	return nil
@@ -80,12 +80,16 @@ func (s *Store) Enqueue(items ...OutboxItem) error {
 // oldest first (by QueuedNs, then ID).
 func (s *Store) Pending(sink string) ([]OutboxItem, error) {
 	var out []OutboxItem
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketOutbox)
 		if b == nil {
 			return nil
 		}
 		return b.ForEach(func(k, v []byte) error {
+			v, err := unseal(v, func() string { return fmt.Sprintf("outbox item %q", k) })
+			if err != nil {
+				return err
+			}
 			var it OutboxItem
 			if err := json.Unmarshal(v, &it); err != nil {
 				return fmt.Errorf("item %q: %w", k, err)
@@ -109,13 +113,16 @@ func (s *Store) Pending(sink string) ([]OutboxItem, error) {
 // An item queued again since it was read (its Data changed) is kept: the
 // newer content has not been delivered.
 func (s *Store) Delivered(items ...OutboxItem) error {
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketOutbox)
 		if b == nil {
 			return nil
 		}
 		for _, it := range items {
-			v := b.Get([]byte(it.ID))
+			v, err := get(b, []byte(it.ID), "outbox item")
+			if err != nil {
+				return err
+			}
 			if v == nil {
 				continue
 			}
@@ -141,11 +148,14 @@ var ErrNotQueued = errors.New("store: outbox item not queued")
 // Deferred records a failed delivery of the item with id: one more
 // attempt, the error, and the earliest time of the next attempt.
 func (s *Store) Deferred(id string, nextNs int64, lastErr string) error {
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketOutbox)
 		var v []byte
 		if b != nil {
-			v = b.Get([]byte(id))
+			var err error
+			if v, err = get(b, []byte(id), "outbox item"); err != nil {
+				return err
+			}
 		}
 		if v == nil {
 			return ErrNotQueued
@@ -160,7 +170,7 @@ func (s *Store) Deferred(id string, nextNs int64, lastErr string) error {
 		if err != nil {
 			return err
 		}
-		return b.Put([]byte(id), nv)
+		return put(b, []byte(id), nv)
 	})
 	if err != nil {
 		return fmt.Errorf("store: outbox defer %q: %w", id, err)

@@ -56,7 +56,10 @@ func Open(path string, timeout time.Duration) (*Store, error) {
 	if timeout <= 0 {
 		timeout = DefaultLockTimeout
 	}
-	db, err := bolt.Open(path, 0o600, &bolt.Options{Timeout: timeout})
+	if err := checkFile(path); err != nil {
+		return nil, err
+	}
+	db, err := openDB(path, &bolt.Options{Timeout: timeout})
 	if err != nil {
 		if errors.Is(err, berrors.ErrTimeout) {
 			return nil, fmt.Errorf("store: open %s: held by another drainsight process or another Open in this process, waited %v: %w (%w)",
@@ -94,7 +97,7 @@ func (s *Store) Close() error {
 // stays in use (a read transaction).
 func (s *Store) Backup(w io.Writer) (int64, error) {
 	var n int64
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		var err error
 		n, err = tx.WriteTo(w)
 		return err
@@ -166,7 +169,7 @@ func (s *Store) CommitTank(tank string, c TankCommit) error {
 		return fmt.Errorf("store: commit tank %q: checkpoint resume %d is after committed %d",
 			tank, c.Checkpoint.ResumeNs, c.Checkpoint.CommittedNs)
 	}
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		tb, err := tx.Bucket(bucketTanks).CreateBucketIfNotExists([]byte(tank))
 		if err != nil {
 			return err
@@ -199,7 +202,7 @@ func (s *Store) CommitTank(tank string, c TankCommit) error {
 			if err != nil {
 				return fmt.Errorf("fit %d: %w", i, err)
 			}
-			if err := fits.Put(timeKey(f.EndNs), v); err != nil {
+			if err := put(fits, timeKey(f.EndNs), v); err != nil {
 				return err
 			}
 		}
@@ -212,12 +215,12 @@ func (s *Store) CommitTank(tank string, c TankCommit) error {
 			if err != nil {
 				return fmt.Errorf("idle fit %d: %w", i, err)
 			}
-			if err := idle.Put(timeKey(f.EndNs), v); err != nil {
+			if err := put(idle, timeKey(f.EndNs), v); err != nil {
 				return err
 			}
 		}
 		if c.DetectorState != nil {
-			if err := meta.Put(keyDetector, c.DetectorState); err != nil {
+			if err := put(meta, keyDetector, c.DetectorState); err != nil {
 				return err
 			}
 		}
@@ -226,7 +229,7 @@ func (s *Store) CommitTank(tank string, c TankCommit) error {
 			if err != nil {
 				return err
 			}
-			if err := meta.Put(keyCheckpoint, v); err != nil {
+			if err := put(meta, keyCheckpoint, v); err != nil {
 				return err
 			}
 		}
@@ -272,7 +275,11 @@ func scanRange(b *bolt.Bucket, fromNs, toNs int64, fn func(v []byte) error) erro
 	c := b.Cursor()
 	end := timeKey(toNs)
 	for k, v := c.Seek(timeKey(fromNs)); k != nil && bytes.Compare(k, end) < 0; k, v = c.Next() {
-		if err := fn(v); err != nil {
+		p, err := unseal(v, func() string { return fmt.Sprintf("record at %d", keyTime(k)) })
+		if err != nil {
+			return err
+		}
+		if err := fn(p); err != nil {
 			return fmt.Errorf("key %d: %w", keyTime(k), err)
 		}
 	}
@@ -283,7 +290,7 @@ func scanRange(b *bolt.Bucket, fromNs, toNs int64, fn func(v []byte) error) erro
 // Use math.MinInt64, math.MaxInt64 for all of them.
 func (s *Store) Fits(tank string, fromNs, toNs int64) ([]model.Fit, error) {
 	var out []model.Fit
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return scanRange(tankBucket(tx, tank, bucketFits), fromNs, toNs, func(v []byte) error {
 			var f model.Fit
 			if err := decodeFlat(v, &f); err != nil {
@@ -302,7 +309,7 @@ func (s *Store) Fits(tank string, fromNs, toNs int64) ([]model.Fit, error) {
 // Idles returns the tank's idle fits with EndNs in [fromNs, toNs), oldest first.
 func (s *Store) Idles(tank string, fromNs, toNs int64) ([]model.IdleFit, error) {
 	var out []model.IdleFit
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return scanRange(tankBucket(tx, tank, bucketIdle), fromNs, toNs, func(v []byte) error {
 			var f model.IdleFit
 			if err := decodeFlat(v, &f); err != nil {
@@ -320,14 +327,14 @@ func (s *Store) Idles(tank string, fromNs, toNs int64) ([]model.IdleFit, error) 
 
 // Checkpoint returns the tank's checkpoint; ok is false when none was committed.
 func (s *Store) Checkpoint(tank string) (cp Checkpoint, ok bool, err error) {
-	err = s.db.View(func(tx *bolt.Tx) error {
+	err = s.view(func(tx *bolt.Tx) error {
 		b := tankBucket(tx, tank, bucketMeta)
 		if b == nil {
 			return nil
 		}
-		v := b.Get(keyCheckpoint)
-		if v == nil {
-			return nil
+		v, err := get(b, keyCheckpoint, "checkpoint")
+		if v == nil || err != nil {
+			return err
 		}
 		ok = true
 		return json.Unmarshal(v, &cp)
@@ -341,11 +348,11 @@ func (s *Store) Checkpoint(tank string) (cp Checkpoint, ok bool, err error) {
 // DetectorState returns a copy of the tank's detector blob, nil when none.
 func (s *Store) DetectorState(tank string) ([]byte, error) {
 	var out []byte
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		if b := tankBucket(tx, tank, bucketMeta); b != nil {
-			if v := b.Get(keyDetector); v != nil {
-				out = bytes.Clone(v)
-			}
+			v, err := get(b, keyDetector, "detector state of tank "+tank)
+			out = bytes.Clone(v)
+			return err
 		}
 		return nil
 	})
@@ -358,7 +365,7 @@ func (s *Store) DetectorState(tank string) ([]byte, error) {
 // beside the detector state, not among the alert records: data availability
 // is the data path's condition, not a tank finding.
 func (s *Store) PutFeeds(feeds map[string][]byte) error {
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		for tank, v := range feeds {
 			if tank == "" {
 				return errors.New("empty tank id")
@@ -371,7 +378,7 @@ func (s *Store) PutFeeds(feeds map[string][]byte) error {
 			if err != nil {
 				return err
 			}
-			if err := meta.Put(keyFeed, v); err != nil {
+			if err := put(meta, keyFeed, v); err != nil {
 				return err
 			}
 		}
@@ -387,11 +394,11 @@ func (s *Store) PutFeeds(feeds map[string][]byte) error {
 // stored.
 func (s *Store) Feed(tank string) ([]byte, error) {
 	var out []byte
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		if b := tankBucket(tx, tank, bucketMeta); b != nil {
-			if v := b.Get(keyFeed); v != nil {
-				out = bytes.Clone(v)
-			}
+			v, err := get(b, keyFeed, "feed status of tank "+tank)
+			out = bytes.Clone(v)
+			return err
 		}
 		return nil
 	})
@@ -401,7 +408,7 @@ func (s *Store) Feed(tank string) ([]byte, error) {
 // Tanks returns the ids of all tanks with committed state, sorted bytewise.
 func (s *Store) Tanks() ([]string, error) {
 	var out []string
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketTanks).ForEachBucket(func(k []byte) error {
 			out = append(out, string(k))
 			return nil
@@ -417,7 +424,7 @@ func (s *Store) Tanks() ([]string, error) {
 // detector state, checkpoint, feed status). Maintenance and alert records
 // are kept.
 func (s *Store) DeleteTank(tank string) error {
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		err := tx.Bucket(bucketTanks).DeleteBucket([]byte(tank))
 		if errors.Is(err, berrors.ErrBucketNotFound) {
 			return ErrNotFound
@@ -468,7 +475,7 @@ func (s *Store) AddMaintenance(m Maintenance) (uint64, error) {
 	if _, err := ParseAction(string(m.Action)); err != nil {
 		return 0, fmt.Errorf("store: add maintenance for tank %q: %w", m.Tank, err)
 	}
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketMaintenance)
 		id, err := b.NextSequence()
 		if err != nil {
@@ -479,7 +486,7 @@ func (s *Store) AddMaintenance(m Maintenance) (uint64, error) {
 		if err != nil {
 			return err
 		}
-		return b.Put(binary.BigEndian.AppendUint64(nil, id), v)
+		return put(b, binary.BigEndian.AppendUint64(nil, id), v)
 	})
 	if err != nil {
 		return 0, fmt.Errorf("store: add maintenance for tank %q: %w", m.Tank, err)
@@ -491,8 +498,12 @@ func (s *Store) AddMaintenance(m Maintenance) (uint64, error) {
 // by AtNs, then ID.
 func (s *Store) Maintenance(tank string) ([]Maintenance, error) {
 	var out []Maintenance
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketMaintenance).ForEach(func(k, v []byte) error {
+			v, err := unseal(v, func() string { return fmt.Sprintf("maintenance record %d", binary.BigEndian.Uint64(k)) })
+			if err != nil {
+				return err
+			}
 			var m Maintenance
 			if err := json.Unmarshal(v, &m); err != nil {
 				return fmt.Errorf("record %d: %w", binary.BigEndian.Uint64(k), err)
@@ -528,7 +539,7 @@ func cmpInt64(a, b int64) int {
 // RemoveMaintenance deletes the record with the given id; it returns an
 // error wrapping ErrNotFound when there is none.
 func (s *Store) RemoveMaintenance(id uint64) error {
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketMaintenance)
 		k := binary.BigEndian.AppendUint64(nil, id)
 		if b.Get(k) == nil {
@@ -575,21 +586,21 @@ type AlertRecord struct {
 	Data []byte
 }
 
-// UpdateAlerts stores put, deletes del and queues out (the notifications of
-// the transitions put records) in one transaction. Deleting a key that does
+// UpdateAlerts stores recs, deletes del and queues out (the notifications of
+// the transitions recs record) in one transaction. Deleting a key that does
 // not exist is not an error.
-func (s *Store) UpdateAlerts(put []AlertRecord, del []AlertKey, out ...OutboxItem) error {
-	err := s.db.Update(func(tx *bolt.Tx) error {
+func (s *Store) UpdateAlerts(recs []AlertRecord, del []AlertKey, out ...OutboxItem) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		if err := putOutbox(tx, out); err != nil {
 			return err
 		}
 		b := tx.Bucket(bucketAlerts)
-		for _, r := range put {
+		for _, r := range recs {
 			k, err := r.Key.bytes()
 			if err != nil {
 				return err
 			}
-			if err := b.Put(k, r.Data); err != nil {
+			if err := put(b, k, r.Data); err != nil {
 				return err
 			}
 		}
@@ -616,11 +627,12 @@ func (s *Store) Alert(key AlertKey) (data []byte, ok bool, err error) {
 	if err != nil {
 		return nil, false, err
 	}
-	err = s.db.View(func(tx *bolt.Tx) error {
-		if v := tx.Bucket(bucketAlerts).Get(k); v != nil {
+	err = s.view(func(tx *bolt.Tx) error {
+		v, err := get(tx.Bucket(bucketAlerts), k, "alert record")
+		if v != nil {
 			data, ok = bytes.Clone(v), true
 		}
-		return nil
+		return err
 	})
 	return data, ok, err
 }
@@ -632,10 +644,14 @@ func (s *Store) Alerts(tank string) ([]AlertRecord, error) {
 	if tank != "" {
 		prefix = []byte(tank + "\x00")
 	}
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		c := tx.Bucket(bucketAlerts).Cursor()
 		for k, v := c.Seek(prefix); k != nil && bytes.HasPrefix(k, prefix); k, v = c.Next() {
-			out = append(out, AlertRecord{Key: parseAlertKey(k), Data: bytes.Clone(v)})
+			p, err := unseal(v, func() string { return "alert record " + parseAlertKey(k).String() })
+			if err != nil {
+				return err
+			}
+			out = append(out, AlertRecord{Key: parseAlertKey(k), Data: bytes.Clone(p)})
 		}
 		return nil
 	})
@@ -660,10 +676,14 @@ func (s *Store) RecordRun(job string, atNs int64, runErr error) error {
 	if job == "" {
 		return errors.New("store: record run: empty job name")
 	}
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketRuns)
 		r := JobRun{Job: job}
-		if v := b.Get([]byte(job)); v != nil {
+		v, err := get(b, []byte(job), "job run")
+		if err != nil {
+			return err
+		}
+		if v != nil {
 			if err := json.Unmarshal(v, &r); err != nil {
 				return err
 			}
@@ -675,11 +695,11 @@ func (s *Store) RecordRun(job string, atNs int64, runErr error) error {
 			r.LastError = runErr.Error()
 			r.Failures++
 		}
-		v, err := json.Marshal(r)
+		nv, err := json.Marshal(r)
 		if err != nil {
 			return err
 		}
-		return b.Put([]byte(job), v)
+		return put(b, []byte(job), nv)
 	})
 	if err != nil {
 		return fmt.Errorf("store: record run of job %q: %w", job, err)
@@ -690,8 +710,12 @@ func (s *Store) RecordRun(job string, atNs int64, runErr error) error {
 // JobRuns returns the run record of every job, ordered by name.
 func (s *Store) JobRuns() ([]JobRun, error) {
 	var out []JobRun
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketRuns).ForEach(func(k, v []byte) error {
+			v, err := unseal(v, func() string { return fmt.Sprintf("job run %q", k) })
+			if err != nil {
+				return err
+			}
 			var r JobRun
 			if err := json.Unmarshal(v, &r); err != nil {
 				return fmt.Errorf("job %q: %w", k, err)
@@ -708,10 +732,10 @@ func (s *Store) JobRuns() ([]JobRun, error) {
 
 // JobRun returns one job's record; ok is false when it never ran.
 func (s *Store) JobRun(job string) (r JobRun, ok bool, err error) {
-	err = s.db.View(func(tx *bolt.Tx) error {
-		v := tx.Bucket(bucketRuns).Get([]byte(job))
-		if v == nil {
-			return nil
+	err = s.view(func(tx *bolt.Tx) error {
+		v, err := get(tx.Bucket(bucketRuns), []byte(job), "job run")
+		if v == nil || err != nil {
+			return err
 		}
 		ok = true
 		return json.Unmarshal(v, &r)

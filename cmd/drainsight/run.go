@@ -52,6 +52,7 @@ Commands:
   report        write the outlet-health report from the stored state
   check         validate a config file and say what would be read
   maintenance   add, list or remove maintenance records (they reset baselines)
+  state         check the state file for damage, or back it up
   study         run the accuracy or detection study and print its table
   help          show this text, or "help <command>"
 
@@ -80,6 +81,7 @@ func commands() []command {
 		{"report", "write the outlet-health report from the stored state", runReport},
 		{"check", "validate a config file", runCheck},
 		{"maintenance", "add, list or remove maintenance records", runMaintenance},
+		{"state", "check the state file for damage, or back it up", runState},
 		{"study", "run the accuracy or detection study", runStudy},
 	}
 }

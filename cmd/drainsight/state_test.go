@@ -1,0 +1,53 @@
+package main
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// TestStateCheckBackupAndDamage: `state check` calls a sound file sound,
+// `state backup` writes a copy that checks sound too, and a scan refuses a
+// damaged state file with exit status 1 and a message saying what to do,
+// never a Go fault (which would exit 2, the bad-usage code).
+func TestStateCheckBackupAndDamage(t *testing.T) {
+	dir := t.TempDir()
+	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
+		t.Fatalf("demo: %v\n%s", err, stderr)
+	}
+	state := filepath.Join(dir, "state.db")
+	out, _, err := runArgs(t, "state", "check", "--state", state)
+	if err != nil || !strings.Contains(out, "sound") {
+		t.Fatalf("check of the demo's state: %v\n%s", err, out)
+	}
+	bak := filepath.Join(t.TempDir(), "copy.db")
+	if out, _, err := runArgs(t, "state", "backup", "--state", state, "--out", bak); err != nil {
+		t.Fatalf("backup: %v\n%s", err, out)
+	}
+	if out, _, err := runArgs(t, "state", "check", "--state", bak); err != nil || !strings.Contains(out, "sound") {
+		t.Errorf("check of the backup: %v\n%s", err, out)
+	}
+	st, _ := os.Stat(state)
+	if err := os.Truncate(state, st.Size()/3); err != nil {
+		t.Fatal(err)
+	}
+	_, _, err = runArgs(t, "scan", "--config", filepath.Join(dir, "demo.yaml"), "--out", t.TempDir())
+	if err == nil || exitCode(err) != 1 || !strings.Contains(err.Error(), "restore a backup") {
+		t.Errorf("scan over a truncated state file: %v (exit %d), want exit 1 with advice", err, exitCode(err))
+	}
+	if _, _, err := runArgs(t, "state", "check", "--state", state); err == nil || exitCode(err) != 1 {
+		t.Errorf("state check of the truncated file: %v, want exit 1", err)
+	}
+	// the backup puts it right
+	b, err := os.ReadFile(bak)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(state, b, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if _, stderr, err := runArgs(t, "scan", "--config", filepath.Join(dir, "demo.yaml"), "--out", t.TempDir()); err != nil {
+		t.Errorf("scan after restoring the backup: %v\n%s", err, stderr)
+	}
+}
