@@ -232,6 +232,17 @@ type Outputs struct {
 	Alert        AlertSettings
 	StateFile    string // bbolt file; default Directory/state.db
 	ScanSchedule string // cron spec (5 fields or @descriptor); default "*/15 * * * *"
+	Delivery     DeliverySettings
+}
+
+// DeliverySettings govern the outbox in the state file: notifications and
+// InfluxDB write-back that failed wait RetryMin after the first failure,
+// doubling to RetryMax (wall-clock time), and are dropped with a log line
+// after ExpireAfter.
+type DeliverySettings struct {
+	RetryMin    time.Duration // default 1 min; 0 retries at the next pass
+	RetryMax    time.Duration // default 1 h
+	ExpireAfter time.Duration // default 30 days
 }
 
 // ReportSettings schedule the weekly report.

@@ -887,6 +887,15 @@ func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 		o.Alert.Command = af.strings("command")
 	}
 	af.done()
+
+	df := d.mapping(f.get("delivery"), path+".delivery")
+	o.Delivery.RetryMin = quantity(df, "retry_min", time.Minute, ParseDuration, nonNegativeDuration)
+	o.Delivery.RetryMax = quantity(df, "retry_max", time.Hour, ParseDuration, nonNegativeDuration)
+	o.Delivery.ExpireAfter = quantity(df, "expire_after", 30*24*time.Hour, ParseDuration, positiveDuration)
+	if o.Delivery.RetryMax < o.Delivery.RetryMin {
+		d.add(path+".delivery.retry_max", df.get("retry_max"), "retry_max %v is shorter than retry_min %v", o.Delivery.RetryMax, o.Delivery.RetryMin)
+	}
+	df.done()
 	f.done()
 	return o
 }

@@ -26,6 +26,9 @@ func TestLoadExample(t *testing.T) {
 		in.QueryWindow != 24*time.Hour || in.Overlap != time.Hour || in.FitsMeasurement != "outlet_fit" {
 		t.Errorf("influx = %+v", in)
 	}
+	if d := c.Outputs.Delivery; d.RetryMin != time.Minute || d.RetryMax != time.Hour || d.ExpireAfter != 30*24*time.Hour {
+		t.Errorf("outputs.delivery = %+v, want 1 min, 1 h, 30 d", d)
+	}
 	t1, t2, t3, t4 := c.Tanks[0], c.Tanks[1], c.Tanks[2], c.Tanks[3]
 	checks := []struct {
 		name      string

@@ -111,7 +111,7 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event
 			}
 			for _, sink := range nt.Sinks {
 				out = append(out, store.OutboxItem{ID: sink + "|" + e.ID(), Sink: sink, Kind: OutboxAlert,
-					Data: data, QueuedNs: nt.Now.UnixNano()})
+					Data: data, QueuedNs: time.Now().UnixNano()})
 			}
 		}
 	}
@@ -129,7 +129,8 @@ type Notify struct {
 	// before Now is recorded but not sent (nobody can act on a day-old
 	// page); 0 means DefaultNotifyHorizon.
 	Horizon time.Duration
-	Now     time.Time
+	// Now is the pass's evaluation time (the horizon's reference).
+	Now time.Time
 }
 
 // DefaultNotifyHorizon is how old a transition may be and still be sent.

@@ -13,7 +13,9 @@ import (
 	"drainsight/store"
 )
 
-// The kinds of outbox item this package queues and delivers.
+// The kinds of outbox item this package queues and delivers. Queue times,
+// backoff and expiry are wall-clock times (time.Now), never the pass's
+// evaluation time, which for files is the data's.
 const (
 	// OutboxFits holds a commit's drain fits ([]model.Fit, gob): queued in
 	// the commit's own transaction when Plan.WriteBack names a sink.
@@ -38,14 +40,14 @@ type FindingsAt struct {
 // fitsItem is the outbox item of one commit's fits: its ID is the tank and
 // the span of the fits' ends, so committing the same fits again (a
 // re-analysis, a resumed pass) replaces it instead of queueing a repeat.
-func fitsItem(sink, tank string, fits []model.Fit, nowNs int64) (store.OutboxItem, error) {
+func fitsItem(sink, tank string, fits []model.Fit) (store.OutboxItem, error) {
 	data, err := EncodeGob(fits)
 	if err != nil {
 		return store.OutboxItem{}, err
 	}
 	return store.OutboxItem{
 		ID:   fmt.Sprintf("%s|%s|%s|%d-%d", sink, OutboxFits, tank, fits[0].EndNs, fits[len(fits)-1].EndNs),
-		Sink: sink, Kind: OutboxFits, Data: data, QueuedNs: nowNs,
+		Sink: sink, Kind: OutboxFits, Data: data, QueuedNs: time.Now().UnixNano(),
 	}, nil
 }
 
@@ -53,7 +55,7 @@ func fitsItem(sink, tank string, fits []model.Fit, nowNs int64) (store.OutboxIte
 // the ones queued before and not yet delivered. Nothing is queued with no
 // findings or without a time to stamp them at (det has neither a fit nor a
 // sample).
-func QueueFindings(st *store.Store, sink string, det *detect.State, fs []detect.Finding, nowNs int64) error {
+func QueueFindings(st *store.Store, sink string, det *detect.State, fs []detect.Finding) error {
 	if len(fs) == 0 {
 		return nil
 	}
@@ -70,7 +72,7 @@ func QueueFindings(st *store.Store, sink string, det *detect.State, fs []detect.
 	}
 	return st.Enqueue(store.OutboxItem{
 		ID:   fmt.Sprintf("%s|%s|%s", sink, OutboxFindings, det.Tank),
-		Sink: sink, Kind: OutboxFindings, Data: data, QueuedNs: nowNs,
+		Sink: sink, Kind: OutboxFindings, Data: data, QueuedNs: time.Now().UnixNano(),
 	})
 }
 
@@ -145,12 +147,17 @@ const DefaultOutboxMaxAge = 30 * 24 * time.Hour
 
 // DefaultBackoff waits 1 min after the first failure, doubling to at most
 // 1 h: a sink down for a day is tried about 30 times.
-func DefaultBackoff(n int) time.Duration {
-	d := time.Minute
-	for i := 1; i < n && d < time.Hour; i++ {
-		d *= 2
+func DefaultBackoff(n int) time.Duration { return Backoff(time.Minute, time.Hour)(n) }
+
+// Backoff waits lo after the first failure, doubling to at most hi.
+func Backoff(lo, hi time.Duration) func(n int) time.Duration {
+	return func(n int) time.Duration {
+		d := lo
+		for i := 1; i < n && d < hi; i++ {
+			d *= 2
+		}
+		return min(d, hi)
 	}
-	return min(d, time.Hour)
 }
 
 // Delivery counts what one delivery round did.
@@ -175,7 +182,7 @@ func (d *Delivery) Add(e Delivery) {
 }
 
 // Deliver sends the due items of sink oldest first until the queue is
-// empty or an item fails: a failure means the destination is down or
+// empty or an item fails (now is the wall clock, as the queue times are): a failure means the destination is down or
 // refusing, so the item waits for its backoff and the rest wait for the
 // next round (on this run or a later one). Expired items are dropped
 // first. The error is the store's, never the sink's (a sink failure is

@@ -63,7 +63,7 @@ func TestWriteBackThroughOutbox(t *testing.T) {
 		t.Fatalf("%d items queued for 3 fits committed in up to 3 windows", len(queued))
 	}
 	sink := &fakeSink{down: true, fits: map[int64]int{}}
-	now := time.Unix(0, end)
+	now := time.Now() // queue times and backoff are wall-clock times
 	snd := &scan.Sender{Store: st}
 	d, err := snd.Deliver(context.Background(), "influx:test", scan.WriteBackTo(sink), now)
 	if err != nil {
@@ -125,11 +125,11 @@ func TestOutboxExpiryAndFindingsReplace(t *testing.T) {
 		for i := range fs {
 			fs[i] = detect.Finding{Tank: "U1", Kind: detect.KindRestriction}
 		}
-		if err := scan.QueueFindings(st, "s", det, fs, t0.Add(time.Duration(n)*time.Hour).UnixNano()); err != nil {
+		if err := scan.QueueFindings(st, "s", det, fs); err != nil {
 			t.Fatal(err)
 		}
 	}
-	d, _ = snd.Deliver(context.Background(), "s", scan.WriteBackTo(sink), t0.Add(3*time.Hour))
+	d, _ = snd.Deliver(context.Background(), "s", scan.WriteBackTo(sink), time.Now())
 	if d.Delivered != 1 || sink.findings != 2 {
 		t.Errorf("%+v, %d findings written: want one item, the second pass's 2 findings", d, sink.findings)
 	}

@@ -400,7 +400,7 @@ func (r *Run) Commit(final bool, nowNs int64) (fits []model.Fit, err error) {
 	}
 	var out []store.OutboxItem
 	if r.P.WriteBack != "" && len(r.fresh) > 0 {
-		it, err := fitsItem(r.P.WriteBack, r.P.ID, r.fresh, nowNs)
+		it, err := fitsItem(r.P.WriteBack, r.P.ID, r.fresh)
 		if err != nil {
 			return nil, fmt.Errorf("queue fits: %w", err)
 		}

@@ -50,14 +50,14 @@ for more, run backfill (with --reanalyse once a tank has been scanned).
 For InfluxDB tanks the fits and active findings are written back to the
 site's server (influx.fits_measurement, influx.findings_measurement) from an
 outbox in the state file: a commit queues its fits in its own transaction,
-and a write the server refuses stays queued and is retried on later passes
-(backoff from 1 min to 1 h, dropped with a log line after 30 days); the
-summary says how many batches are pending.
+and a write the server refuses stays queued and is retried later in the pass
+and on later passes (outputs.delivery: backoff from 1 min to 1 h, dropped
+with a log line after 30 d); the summary says how many batches are pending.
 
 The transitions to notify are queued in the state file with the alert records
 and sent after the pass, one per request with a stable id; a notifier that
-fails keeps them for the next passes (backoff 1 min to 1 h, dropped with a
-log line after 30 days).
+fails keeps them for the next passes (outputs.delivery: backoff 1 min to
+1 h, dropped with a log line after 30 d).
 
 Running scan again over the same data fits nothing twice and repeats no alert.
 Exit status: 0 done, 1 error (a tank failed, or notifications are still
@@ -134,7 +134,7 @@ func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath
 	}
 	// The lifecycle queued its transitions in the state file with its
 	// records: they are sent now, or on a later pass if a notifier fails.
-	res.notified = j.deliverNotifications(ctx, res.now)
+	res.notified = j.deliverNotifications(ctx)
 	if err := writeOutputs(outDir, res); err != nil {
 		return res, err
 	}

@@ -116,6 +116,8 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	}
 	const backfillFits = "outlet_fit_backfill"
 	withMeas := strings.ReplaceAll(string(demoCfg), "      query_window: 24 h\n", "      query_window: 24 h\n      fits_measurement: "+backfillFits+"\n")
+	// a failed write-back is retried at the next round of the same pass
+	withMeas = strings.Replace(withMeas, "\noutputs:\n", "\noutputs:\n  delivery:\n    retry_min: 0 s\n", 1)
 	if withMeas == string(demoCfg) {
 		t.Fatal("demo.yaml has no query_window line to add fits_measurement after")
 	}
@@ -325,6 +327,7 @@ func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
 	const meas = "outlet_fit_refused"
 	y := strings.ReplaceAll(string(demoCfg), "url: "+url, "url: "+proxy.URL)
 	y = strings.ReplaceAll(y, "      query_window: 24 h\n", "      query_window: 24 h\n      fits_measurement: "+meas+"\n")
+	y = strings.Replace(y, "\noutputs:\n", "\noutputs:\n  delivery:\n    retry_min: 0 s\n", 1)
 	if !strings.Contains(y, proxy.URL) || !strings.Contains(y, meas) {
 		t.Fatalf("demo.yaml not rewritten for the proxy:\n%s", y)
 	}
@@ -363,9 +366,8 @@ func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
 		t.Errorf("summary with writes refused does not say the write-back is pending and failing:\n%s", out)
 	}
 	refuse.Store(false)
-	// the next scheduled pass, past the failed item's backoff (1 min)
-	later := time.Now().Add(2 * time.Minute).UTC().Format(time.RFC3339)
-	out, stderr, err = runArgs(t, "scan", "--config", cfg, "--state", state, "--out", t.TempDir(), "--now", later)
+	// the next scheduled pass (retry_min 0: the failed item is due again)
+	out, stderr, err = runArgs(t, "scan", "--config", cfg, "--state", state, "--out", t.TempDir())
 	if err != nil {
 		t.Fatalf("scan with writes accepted: %v\n%s", err, stderr)
 	}

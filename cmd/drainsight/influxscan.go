@@ -131,7 +131,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		return fail(err)
 	}
 	defer wc.Close()
-	wb := j.startWriteBack(ctx, siteID, influxSink{c: wc, site: siteID, fitsMeas: ix.FitsMeasurement, findingsMeas: ix.FindingsMeasurement}, now)
+	wb := j.startWriteBack(ctx, siteID, influxSink{c: wc, site: siteID, fitsMeas: ix.FitsMeasurement, findingsMeas: ix.FindingsMeasurement})
 
 	// Pipeline: one goroutine pulls window after window (one query each)
 	// while the tanks of the previous window are segmented, fitted and
@@ -239,7 +239,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				// While the data are missing the findings are withheld:
 				// what was written before stands, and a feed notice is the
 				// data path's condition, not an outlet finding.
-				if err := scan.QueueFindings(j.st, wb.name, t.run.Det, ev.Findings, now.UnixNano()); err != nil {
+				if err := scan.QueueFindings(j.st, wb.name, t.run.Det, ev.Findings); err != nil {
 					j.log.Warn("finding write-back not queued", "tank", t.p.cfg.ID, "err", err)
 				}
 			}

@@ -52,14 +52,20 @@ func (j *job) notifyPlan(now time.Time) scan.Notify {
 	return scan.Notify{Sinks: slices.Sorted(maps.Keys(j.notifiers)), Now: now}
 }
 
+// sender drains the outbox with the configured backoff and expiry.
+func (j *job) sender() *scan.Sender {
+	d := j.cfg.Outputs.Delivery
+	return &scan.Sender{Store: j.st, Log: j.log, MaxAge: d.ExpireAfter, Backoff: scan.Backoff(d.RetryMin, d.RetryMax)}
+}
+
 // deliverNotifications sends the queued transitions (this pass's and any
 // left by earlier ones) to every notifier, and returns what is sent and
 // still pending.
-func (j *job) deliverNotifications(ctx context.Context, now time.Time) scan.Delivery {
+func (j *job) deliverNotifications(ctx context.Context) scan.Delivery {
 	var total scan.Delivery
-	snd := &scan.Sender{Store: j.st, Log: j.log}
+	snd := j.sender()
 	for _, name := range slices.Sorted(maps.Keys(j.notifiers)) {
-		d, err := snd.Deliver(ctx, name, scan.NotifyTo(j.notifiers[name]), now)
+		d, err := snd.Deliver(ctx, name, scan.NotifyTo(j.notifiers[name]), time.Now())
 		if err != nil {
 			j.log.Error("notification outbox", "notifier", name, "err", err)
 		}

@@ -43,40 +43,40 @@ func (s influxSink) WriteFindings(ctx context.Context, f scan.FindingsAt) error 
 	return s.c.WritePoints(ctx, pts)
 }
 
-// writeBackGrace is how long the end of a pass waits for a write-back
-// attempt still under way before cutting it short (the item stays queued).
-const writeBackGrace = 5 * time.Second
-
 // writeBack delivers one site's outbox in the background during a pass:
 // kick asks for a round (after each window's commits), finish runs a last
-// round and returns what was delivered. After the first failure the sink
-// rests until the next pass (its items keep their backoff).
+// round and returns what was delivered. After a failure the sink rests for
+// outputs.delivery.retry_min (its items keep their own backoff), so a
+// refusing or unreachable server costs one failed attempt per rest (the
+// write-back client tries twice within its timeout), and a server back
+// from an outage gets the queue on the next round after the rest.
+// Cancelling the pass stops the round; what was not delivered stays
+// queued.
 type writeBack struct {
-	name   string
-	kicks  chan struct{}
-	done   chan struct{}
-	cancel context.CancelFunc
-	mu     sync.Mutex
-	total  scan.Delivery
+	name  string
+	kicks chan struct{}
+	done  chan struct{}
+	mu    sync.Mutex
+	total scan.Delivery
 }
 
-func (j *job) startWriteBack(ctx context.Context, site string, sink scan.Sink, now time.Time) *writeBack {
+func (j *job) startWriteBack(ctx context.Context, site string, sink scan.Sink) *writeBack {
 	wb := &writeBack{name: "influx:" + site, kicks: make(chan struct{}, 1), done: make(chan struct{})}
-	dctx, cancel := context.WithCancel(context.WithoutCancel(ctx))
-	wb.cancel = cancel
-	sender := &scan.Sender{Store: j.st, Log: j.log}
+	sender := j.sender()
 	go func() {
 		defer close(wb.done)
-		failed := false
+		var restUntil time.Time
 		for range wb.kicks {
-			if failed {
+			if time.Now().Before(restUntil) {
 				continue
 			}
-			d, err := sender.Deliver(dctx, wb.name, scan.WriteBackTo(sink), now)
+			d, err := sender.Deliver(ctx, wb.name, scan.WriteBackTo(sink), time.Now())
 			if err != nil {
 				j.log.Error("write-back outbox", "site", site, "err", err)
 			}
-			failed = d.Deferred > 0 || err != nil
+			if d.Deferred > 0 || err != nil {
+				restUntil = time.Now().Add(j.cfg.Outputs.Delivery.RetryMin)
+			}
 			wb.mu.Lock()
 			pending := d.Pending
 			wb.total.Add(d)
@@ -94,18 +94,12 @@ func (wb *writeBack) kick() {
 	}
 }
 
-// finish runs the last round, waits for it at most writeBackGrace and
-// returns the pass's deliveries.
+// finish runs the last round, waits for it and returns the pass's
+// deliveries.
 func (wb *writeBack) finish() scan.Delivery {
 	wb.kick()
 	close(wb.kicks)
-	select {
-	case <-wb.done:
-	case <-time.After(writeBackGrace):
-		wb.cancel()
-		<-wb.done
-	}
-	wb.cancel()
+	<-wb.done
 	wb.mu.Lock()
 	defer wb.mu.Unlock()
 	return wb.total
