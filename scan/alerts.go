@@ -96,23 +96,26 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event
 		}
 	}
 	var out []store.OutboxItem
-	if len(nt.Sinks) > 0 {
-		horizon := nt.Horizon
-		if horizon <= 0 {
-			horizon = DefaultNotifyHorizon
+	horizon := nt.Horizon
+	if horizon <= 0 {
+		horizon = DefaultNotifyHorizon
+	}
+	for seq, e := range alert.Notifiable(evs) {
+		data, err := EncodeGob(QueuedEvent{Pass: nt.Pass, Seq: seq, Event: e})
+		if err != nil {
+			return nil, err
 		}
-		for _, e := range alert.Notifiable(evs) {
-			if e.At.Before(nt.Now.Add(-horizon)) && !(e.Status == alert.StatusCleared && reset[e.Finding.Tank]) {
-				continue // older history: recorded in findings.jsonl, not sent
-			}
-			data, err := EncodeGob(e)
-			if err != nil {
-				return nil, err
-			}
-			for _, sink := range nt.Sinks {
-				out = append(out, store.OutboxItem{ID: sink + "|" + e.ID(), Sink: sink, Kind: OutboxAlert,
-					Data: data, QueuedNs: time.Now().UnixNano()})
-			}
+		item := func(sink string) store.OutboxItem {
+			return store.OutboxItem{ID: sink + "|" + e.ID(), Sink: sink, Kind: OutboxAlert, Data: data, QueuedNs: time.Now().UnixNano()}
+		}
+		if nt.FileSink != "" {
+			out = append(out, item(nt.FileSink)) // every transition, history included
+		}
+		if e.At.Before(nt.Now.Add(-horizon)) && !(e.Status == alert.StatusCleared && reset[e.Finding.Tank]) {
+			continue // older history: recorded in findings.jsonl, not sent
+		}
+		for _, sink := range nt.Sinks {
+			out = append(out, item(sink))
 		}
 	}
 	if err := st.UpdateAlerts(put, del, out...); err != nil {
@@ -125,6 +128,12 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event
 type Notify struct {
 	// Sinks are the outbox sinks, one per configured notifier.
 	Sinks []string
+	// FileSink, when set, receives every transition of the pass, history
+	// included, for the findings file (SinkFindings): a pass killed before
+	// it wrote the file leaves them for the next one.
+	FileSink string
+	// Pass identifies the pass (QueuedEvent.Pass).
+	Pass int64
 	// Horizon: a transition of the replayed history older than this
 	// before Now is recorded but not sent (nobody can act on a day-old
 	// page); 0 means DefaultNotifyHorizon.
@@ -139,3 +148,19 @@ const DefaultNotifyHorizon = 24 * time.Hour
 // storeKey is the state file's key of a finding's lifecycle record: its
 // alert.ID.
 func storeKey(f detect.Finding) store.AlertKey { return store.AlertKey(alert.IDOf(f)) }
+
+// QueuedEvent is the payload of an OutboxAlert item: the transition, the
+// pass that queued it and its place in that pass's order.
+type QueuedEvent struct {
+	Pass  int64
+	Seq   int
+	Event alert.Event
+}
+
+// The outbox sinks of the output files: the fits of the events file and
+// the transitions of the findings file, delivered when the file is written
+// (and so made good by the next pass after a kill or a full disk).
+const (
+	SinkEvents   = "output:events"
+	SinkFindings = "output:findings"
+)

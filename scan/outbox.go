@@ -23,7 +23,7 @@ const (
 	// OutboxFindings holds a tank's active findings at one evaluation
 	// (FindingsAt, gob); one item per tank, each pass's replacing the last.
 	OutboxFindings = "findings"
-	// OutboxAlert holds one alert transition to notify (alert.Event,
+	// OutboxAlert holds one alert transition to notify (QueuedEvent,
 	// gob), queued per notifier with the lifecycle records that made it.
 	OutboxAlert = "alert"
 )
@@ -123,11 +123,11 @@ func (d notifyDest) Send(ctx context.Context, it store.OutboxItem) error {
 	if it.Kind != OutboxAlert {
 		return fmt.Errorf("outbox item %s: kind %q is not a notification", it.ID, it.Kind)
 	}
-	var e alert.Event
-	if err := DecodeGob(it.Data, &e); err != nil {
+	var q QueuedEvent
+	if err := DecodeGob(it.Data, &q); err != nil {
 		return fmt.Errorf("outbox item %s: %w", it.ID, err)
 	}
-	return d.n.Notify(ctx, []alert.Event{e})
+	return d.n.Notify(ctx, []alert.Event{q.Event})
 }
 
 // Sender drains the outbox of the state file into sinks.

@@ -74,6 +74,10 @@ type Plan struct {
 	// none): each commit queues its fits in its own transaction (see
 	// Sender).
 	WriteBack string
+	// EventsSink, when set (SinkEvents), receives the fits of each commit
+	// for the events file the same way: a pass killed after its commits
+	// leaves them for the next pass's file.
+	EventsSink string
 }
 
 // Run carries one tank through one pass: segmenter, fits, detector and the
@@ -399,8 +403,11 @@ func (r *Run) Commit(final bool, nowNs int64) (fits []model.Fit, err error) {
 		Drains:      r.cp.Drains + len(r.fresh),
 	}
 	var out []store.OutboxItem
-	if r.P.WriteBack != "" && len(r.fresh) > 0 {
-		it, err := fitsItem(r.P.WriteBack, r.P.ID, r.fresh)
+	for _, sink := range []string{r.P.WriteBack, r.P.EventsSink} {
+		if sink == "" || len(r.fresh) == 0 {
+			continue
+		}
+		it, err := fitsItem(sink, r.P.ID, r.fresh)
 		if err != nil {
 			return nil, fmt.Errorf("queue fits: %w", err)
 		}

@@ -4,6 +4,7 @@ import (
 	"cmp"
 	"context"
 	"drainsight/scan"
+	"drainsight/store"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -135,7 +136,7 @@ func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath
 	// The lifecycle queued its transitions in the state file with its
 	// records: they are sent now, or on a later pass if a notifier fails.
 	res.notified = j.deliverNotifications(ctx)
-	if err := writeOutputs(outDir, res); err != nil {
+	if err := writeOutputs(outDir, j.st, res); err != nil {
 		return res, err
 	}
 	printSummary(e.stdout, res, outDir, time.Since(start))
@@ -263,8 +264,31 @@ func toFindingRecord(ev alert.Event) findingRecord {
 // writeOutputs writes events.jsonl, findings.jsonl and feeds.jsonl
 // atomically (a
 // temporary file renamed into place), so a reader never sees half a file.
-func writeOutputs(dir string, res *scanResult) error {
+func writeOutputs(dir string, st *store.Store, res *scanResult) error {
+	// The fits and transitions wait in the state file's outbox until a
+	// file lists them: those of a pass that was killed, or that could not
+	// write its files (a full disk), come with this pass's.
+	evItems, err := st.Pending(scan.SinkEvents)
+	if err != nil {
+		return err
+	}
 	fits := res.fits()
+	seen := map[string]bool{}
+	for _, f := range fits {
+		seen[fmt.Sprint(f.Tank, f.EndNs)] = true
+	}
+	for _, it := range evItems {
+		var fs []model.Fit
+		if err := scan.DecodeGob(it.Data, &fs); err != nil {
+			return fmt.Errorf("outbox item %s: %w", it.ID, err)
+		}
+		for _, f := range fs {
+			if k := fmt.Sprint(f.Tank, f.EndNs); !seen[k] {
+				seen[k] = true
+				fits = append(fits, f)
+			}
+		}
+	}
 	slices.SortFunc(fits, func(a, b model.Fit) int {
 		return cmp.Or(cmp.Compare(a.Tank, b.Tank), cmp.Compare(a.StartNs, b.StartNs))
 	})
@@ -275,11 +299,35 @@ func writeOutputs(dir string, res *scanResult) error {
 	if err := writeJSONL(filepath.Join(dir, "events.jsonl"), evs); err != nil {
 		return err
 	}
+	if err := st.Delivered(evItems...); err != nil {
+		return err
+	}
+	fItems, err := st.Pending(scan.SinkFindings)
+	if err != nil {
+		return err
+	}
+	var left []scan.QueuedEvent
+	for _, it := range fItems {
+		var q scan.QueuedEvent
+		if err := scan.DecodeGob(it.Data, &q); err != nil {
+			return fmt.Errorf("outbox item %s: %w", it.ID, err)
+		}
+		if q.Pass != res.pass {
+			left = append(left, q)
+		}
+	}
+	slices.SortFunc(left, func(a, b scan.QueuedEvent) int { return cmp.Or(cmp.Compare(a.Pass, b.Pass), cmp.Compare(a.Seq, b.Seq)) })
 	var fr []any
+	for _, q := range left {
+		fr = append(fr, toFindingRecord(q.Event))
+	}
 	for _, ev := range res.events {
 		fr = append(fr, toFindingRecord(ev))
 	}
 	if err := writeJSONL(filepath.Join(dir, "findings.jsonl"), fr); err != nil {
+		return err
+	}
+	if err := st.Delivered(fItems...); err != nil {
 		return err
 	}
 	var feeds []any

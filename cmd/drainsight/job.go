@@ -120,6 +120,8 @@ type scanResult struct {
 	// and what is still pending; notified the same for notifications.
 	writeBack scan.Delivery
 	notified  scan.Delivery
+	// pass identifies the pass in the outbox (scan.QueuedEvent.Pass)
+	pass int64
 }
 
 func (r *scanResult) fits() []model.Fit {
@@ -203,7 +205,8 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	res.outcomes = outcomes
 	// The lifecycle runs even when the pass was interrupted: what was
 	// committed and evaluated is reported.
-	evs, err := scan.UpdateAlerts(j.st, outcomes, j.notifyPlan(now))
+	res.pass = time.Now().UnixNano()
+	evs, err := scan.UpdateAlerts(j.st, outcomes, j.notifyPlan(now, res.pass))
 	res.events = evs
 	if ferr := scan.PutFeeds(j.st, outcomes); ferr != nil {
 		err = errors.Join(err, ferr)

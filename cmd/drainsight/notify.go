@@ -47,9 +47,10 @@ func (w webhookFromEnv) Notify(ctx context.Context, evs []alert.Event) error {
 	return alert.WebhookNotifier{URL: url}.Notify(ctx, evs)
 }
 
-// notifyPlan is where this pass's transitions are queued.
-func (j *job) notifyPlan(now time.Time) scan.Notify {
-	return scan.Notify{Sinks: slices.Sorted(maps.Keys(j.notifiers)), Now: now}
+// notifyPlan is where this pass's transitions are queued: the notifiers
+// and the findings file.
+func (j *job) notifyPlan(now time.Time, pass int64) scan.Notify {
+	return scan.Notify{Sinks: slices.Sorted(maps.Keys(j.notifiers)), FileSink: scan.SinkFindings, Pass: pass, Now: now}
 }
 
 // sender drains the outbox with the configured backoff and expiry.

@@ -98,6 +98,8 @@ func buildPlan(ct config.Tank) (*plan, error) {
 		// An InfluxDB tank's fits go back to its site's server through
 		// the outbox (influxscan.go).
 		WriteBack: writeBackSink(&ct),
+		// Every commit's fits reach the next events.jsonl written.
+		EventsSink: scan.SinkEvents,
 		Segment: model.SegmentOptions{
 			MinDropM:    d.MinDropM,
 			MinDuration: d.MinDrainDuration,

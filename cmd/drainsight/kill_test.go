@@ -1,0 +1,161 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"math/rand/v2"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"sort"
+	"strings"
+	"syscall"
+	"testing"
+	"time"
+)
+
+// TestHelperDrainsight is the program itself when the test binary is run
+// again by TestKilledPassesLoseNothing (DRAINSIGHT_HELPER_ARGS holds the
+// arguments, one per line); otherwise it does nothing.
+func TestHelperDrainsight(t *testing.T) {
+	args := os.Getenv("DRAINSIGHT_HELPER_ARGS")
+	if args == "" {
+		t.Skip("the program, when run by TestKilledPassesLoseNothing")
+	}
+	err := run(context.Background(), strings.Split(args, "\n"), os.Stdout, os.Stderr)
+	os.Exit(exitCode(err))
+}
+
+// outputKeys reads the drains and the transitions (new and cleared, with
+// their times) an output directory lists; ok is false when the pass left
+// no files there.
+func outputKeys(t *testing.T, dir string) (drains, transitions []string, ok bool) {
+	ev, fi := filepath.Join(dir, "events.jsonl"), filepath.Join(dir, "findings.jsonl")
+	if _, err := os.Stat(ev); err != nil {
+		return nil, nil, false
+	}
+	for _, e := range readJSONL(t, ev) {
+		drains = append(drains, fmt.Sprintf("%s|%s|%s", e["tank"], e["start"], e["end"]))
+	}
+	if _, err := os.Stat(fi); err != nil {
+		return drains, nil, true
+	}
+	for _, f := range readJSONL(t, fi) {
+		if f["status"] != "ongoing" {
+			transitions = append(transitions, fmt.Sprintf("%s|%s|%v|%s|%s", f["tank"], f["kind"], f["subtype"], f["status"], f["status_at"]))
+		}
+	}
+	return drains, transitions, true
+}
+
+func uniq(s []string) []string {
+	sort.Strings(s)
+	out := s[:0]
+	for i, x := range s {
+		if i == 0 || x != s[i-1] {
+			out = append(out, x)
+		}
+	}
+	return out
+}
+
+// TestKilledPassesLoseNothing kills scans of the demo plant with SIGKILL at
+// random points and runs them again until one completes, as a scheduler
+// would, also through a pass whose outputs directory cannot be written:
+// the events and findings files of the passes that completed list every
+// drain and every transition of an undisturbed scan (a repeat is allowed:
+// the stable keys let a reader drop it), none lost.
+func TestKilledPassesLoseNothing(t *testing.T) {
+	dir := t.TempDir()
+	days := "40"
+	trials := 4
+	if raceEnabled {
+		days, trials = "20", 2
+	}
+	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", days); err != nil {
+		t.Fatalf("demo: %v\n%s", err, stderr)
+	}
+	cfg := filepath.Join(dir, "demo.yaml")
+	refOut := t.TempDir()
+	helper := func(args ...string) *exec.Cmd {
+		cmd := exec.Command(os.Args[0], "-test.run=^TestHelperDrainsight$")
+		cmd.Env = append(os.Environ(), "DRAINSIGHT_HELPER_ARGS="+strings.Join(args, "\n"))
+		return cmd
+	}
+	start := time.Now()
+	if err := helper("scan", "--config", cfg, "--state", filepath.Join(t.TempDir(), "ref.db"), "--out", refOut).Run(); err != nil {
+		t.Fatalf("reference scan: %v", err)
+	}
+	full := time.Since(start) // the kills fall anywhere in a pass this long
+	refD, refT, _ := outputKeys(t, refOut)
+	refD, refT = uniq(refD), uniq(refT)
+	if len(refD) < 50 || len(refT) < 3 {
+		t.Fatalf("reference: %d drains, %d transitions", len(refD), len(refT))
+	}
+	kills := 0
+	for trial := range trials {
+		rng := rand.New(rand.NewPCG(uint64(trial), 7))
+		state := filepath.Join(t.TempDir(), "s.db")
+		var gotD, gotT []string
+		done := false
+		for attempt := 0; !done; attempt++ {
+
+			out := filepath.Join(t.TempDir(), fmt.Sprint("out", attempt))
+			if err := os.MkdirAll(out, 0o755); err != nil {
+				t.Fatal(err)
+			}
+			if attempt == 1 {
+				// events.jsonl cannot be replaced (a directory stands in
+				// its place): the pass commits, then fails to write its
+				// outputs, as on a full disk, and says so
+				if err := os.Mkdir(filepath.Join(out, "events.jsonl"), 0o755); err != nil {
+					t.Fatal(err)
+				}
+			}
+			cmd := helper("scan", "--config", cfg, "--state", state, "--out", out)
+			if err := cmd.Start(); err != nil {
+				t.Fatal(err)
+			}
+			// passes 0, 2 and 3 are killed at a random point of the pass
+			// (the state file, the outbox and the outputs at any stage);
+			// pass 1 cannot write its outputs; pass 4 runs undisturbed
+			// (most of a file pass is reading; its commits, alert records
+			// and outputs come in the last part, where half the kills fall)
+			killAt := time.Duration(rng.Float64() * float64(full))
+			if rng.IntN(2) == 0 {
+				killAt = time.Duration((0.6 + 0.4*rng.Float64()) * float64(full))
+			}
+			timer := time.AfterFunc(killAt, func() {
+				if attempt != 1 && attempt < 4 {
+					cmd.Process.Signal(syscall.SIGKILL)
+				}
+			})
+			err := cmd.Wait()
+			timer.Stop()
+			killed := false
+			if ee, ok := err.(*exec.ExitError); ok {
+				if ws, ok := ee.Sys().(syscall.WaitStatus); ok && ws.Signaled() {
+					killed = true
+					kills++
+				}
+			}
+			if attempt == 1 {
+				// only what a pass wrote completely counts
+			} else if d, tr, ok := outputKeys(t, out); ok {
+				gotD, gotT = append(gotD, d...), append(gotT, tr...)
+			}
+			if attempt == 1 && (err == nil || killed) {
+				t.Errorf("trial %d: the pass that could not write its outputs: %v, want exit status 1", trial, err)
+			}
+			done = attempt >= 4
+		}
+		gotD, gotT = uniq(gotD), uniq(gotT)
+		if strings.Join(gotD, "\n") != strings.Join(refD, "\n") {
+			t.Errorf("trial %d: the completed passes list %d drains, the undisturbed scan %d\nlost: %v\nextra: %v", trial, len(gotD), len(refD), head(minus(refD, gotD)), head(minus(gotD, refD)))
+		}
+		if strings.Join(gotT, "\n") != strings.Join(refT, "\n") {
+			t.Errorf("trial %d: the completed passes list %d transitions, the undisturbed scan %d\nlost: %v\nextra: %v", trial, len(gotT), len(refT), minus(refT, gotT), minus(gotT, refT))
+		}
+	}
+	t.Logf("%d trials, %d passes killed at random, a pass that could not write its outputs in each: %d drains and %d transitions, none lost", trials, kills, len(refD), len(refT))
+}
