@@ -93,6 +93,11 @@ type ReadOptions struct {
 	// Tanks, when not nil, lists the tanks to read; samples of any other tank
 	// are counted as unknown_tank.
 	Tanks map[string]bool
+	// Range, when not nil, checks each level reading of a known tank: a
+	// non-empty answer says why the reading is out of range (counted as
+	// OutOfRange with its file and line, not delivered). StreamSeries sets
+	// it from the Conversions.
+	Range func(tank string, value float64) string
 	// MaxLineBytes is the longest line accepted; longer lines are skipped and
 	// counted as malformed. 0 means DefaultMaxLineBytes (1 MiB).
 	MaxLineBytes int
@@ -177,10 +182,18 @@ func readFile(ctx context.Context, path string, format Format, opt ReadOptions, 
 		rep.add(Problem{File: path, Line: lr.n, Kind: kind, Text: text})
 	}
 	accept := func(tankB []byte, tNs int64, v float64) {
-		tank := ord.intern(tankB)
-		if opt.Tanks != nil && !opt.Tanks[tank] {
-			problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tank))
+		// Unknown names are counted, never interned: memory stays flat
+		// whatever the input holds.
+		if opt.Tanks != nil && !opt.Tanks[string(tankB)] {
+			problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tankB))
 			return
+		}
+		tank := ord.intern(tankB)
+		if opt.Range != nil {
+			if text := opt.Range(tank, v); text != "" {
+				problem(OutOfRange, fmt.Sprintf("tank %q: %s", tank, text))
+				return
+			}
 		}
 		if kind, text := check(ord.lastNs, tank, tNs); kind != "" {
 			problem(kind, text)
@@ -196,8 +209,11 @@ func readFile(ctx context.Context, path string, format Format, opt ReadOptions, 
 		if r.inflowKind != "" {
 			problem(r.inflowKind, r.inflowText)
 		}
-		tank := ord.intern(r.tank)
-		known := opt.Tanks == nil || opt.Tanks[tank]
+		known := opt.Tanks == nil || opt.Tanks[string(r.tank)]
+		var tank string
+		if known {
+			tank = ord.intern(r.tank)
+		}
 		if r.hasInflow && known && opt.OnInflow != nil {
 			if k, t := check(ord.lastFlow, tank, r.tNs); k != "" {
 				problem(k, "inflow: "+t)
@@ -210,7 +226,7 @@ func readFile(ctx context.Context, path string, format Format, opt ReadOptions, 
 		case r.hasLevel:
 			accept(r.tank, r.tNs, r.level)
 		case !known:
-			problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tank))
+			problem(UnknownTank, fmt.Sprintf("tank %q is not configured", r.tank))
 		case opt.OnInflow == nil:
 			rep.Foreign++
 		}
@@ -286,6 +302,24 @@ type Conversion struct {
 	// InflowToSI converts the inflow meter's unit to m^3/s; 0 means the tank
 	// has no inflow meter.
 	InflowToSI float64
+	// MinHeadM and MaxHeadM bound the heads the tank can show (its bottom
+	// and top relative to the outlet, widened by a tolerance); a reading
+	// outside is an out_of_range problem, not a sample. Both 0: no bound.
+	MinHeadM, MaxHeadM float64
+}
+
+// Head converts a raw reading to head, m; ok is false (with what is wrong)
+// for a reading outside [MinHeadM, MaxHeadM] or one that does not convert.
+// File reads and InfluxDB pulls both convert through it.
+func (c *Conversion) Head(v float64) (h float64, problem string) {
+	h = c.Sensor.HeadM(v, c.OutletElevM)
+	switch {
+	case math.IsNaN(h) || math.IsInf(h, 0):
+		return h, fmt.Sprintf("reading %g does not convert to a level", v)
+	case (c.MinHeadM != 0 || c.MaxHeadM != 0) && (h < c.MinHeadM || h > c.MaxHeadM):
+		return h, fmt.Sprintf("reading %g is a head of %.4g m, outside the tank's %.3g to %.3g m", v, h, c.MinHeadM, c.MaxHeadM)
+	}
+	return h, ""
 }
 
 // ReadSeries expands the glob patterns, reads every matching file once in
@@ -353,6 +387,11 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 		}
 	}
 	opt.Tanks = known
+	opt.Range = func(tank string, v float64) string {
+		c := conv[tank]
+		_, text := c.Head(v)
+		return text
+	}
 	flows := map[string]*meterReadings{}
 	if opt.InflowField != "" {
 		opt.OnInflow = func(tank string, tNs int64, v float64) {
@@ -396,7 +435,8 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 			bufs[tank] = s
 		}
 		c := conv[tank]
-		s.Append(tNs, c.Sensor.HeadM(v, c.OutletElevM))
+		h, _ := c.Head(v) // opt.Range let only good readings through
+		s.Append(tNs, h)
 	}
 	ord := newOrder()
 	for _, p := range paths {

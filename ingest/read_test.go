@@ -380,3 +380,71 @@ func TestStreamSeriesChunksMatchWhole(t *testing.T) {
 		t.Errorf("A inflow = %v", a.InflowM3s)
 	}
 }
+
+// Readings that are no level of the tank (1e308 m in a 4 m tank, a
+// negative reading metres below its bottom, a value that converts to no
+// level) are counted as out_of_range with their file and line and not
+// delivered; readings within the tolerance, a small negative zero offset
+// included, are samples.
+func TestReadOutOfRange(t *testing.T) {
+	dir := t.TempDir()
+	body := "time,tank,value\n" +
+		"2024-03-01T00:00:00Z,T1,1.5\n" +
+		"2024-03-01T00:00:10Z,T1,1e308\n" +
+		"2024-03-01T00:00:20Z,T1,-0.03\n" +
+		"2024-03-01T00:00:30Z,T1,-3\n" +
+		"2024-03-01T00:00:40Z,T1,4.2\n" +
+		"2024-03-01T00:00:50Z,T1,1.4\n"
+	path := filepath.Join(dir, "a.csv")
+	if err := os.WriteFile(path, []byte(body), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	// a 4 m tank, outlet 0.2 m up, 0.4 m tolerance: heads -0.6 to 4.2 m
+	conv := map[string]Conversion{"T1": {Sensor: Sensor{Kind: Depth, UnitToSI: 1}, OutletElevM: 0.2, MinHeadM: -0.6, MaxHeadM: 4.2}}
+	series, rep, err := ReadSeries(context.Background(), []string{path}, FormatAuto, ReadOptions{}, conv)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s := series["T1"]; s == nil || s.Len() != 4 {
+		t.Fatalf("T1: %+v, want 4 samples (1.5, -0.03, 4.2 and 1.4)", s)
+	}
+	if rep.Counts[OutOfRange] != 2 {
+		t.Errorf("out_of_range %d, want 2 (1e308 and -3)", rep.Counts[OutOfRange])
+	}
+	var lines []int64
+	for _, p := range rep.Examples {
+		if p.Kind == OutOfRange {
+			lines = append(lines, p.Line)
+		}
+	}
+	if fmt.Sprint(lines) != "[3 5]" {
+		t.Errorf("out_of_range lines %v, want [3 5]", lines)
+	}
+	if rep.Lines != rep.Ignored+rep.Foreign+rep.Samples+rep.Problems() {
+		t.Errorf("lines not all accounted for: %v", rep)
+	}
+}
+
+// Names of tanks that are not configured are counted, never kept: reading
+// 50 000 distinct unknown names interns none of them.
+func TestUnknownTanksNotInterned(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("time,tank,value\n")
+	for i := range 50000 {
+		fmt.Fprintf(&b, "2024-03-01T00:00:00Z,X%07d,1\n", i)
+	}
+	b.WriteString("2024-03-01T00:00:00Z,T1,1\n")
+	path := filepath.Join(t.TempDir(), "u.csv")
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	ord := newOrder()
+	var got []sample
+	rep, err := readFile(context.Background(), path, FormatAuto, ReadOptions{Tanks: map[string]bool{"T1": true}}, ord, collect(&got))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.Counts[UnknownTank] != 50000 || len(got) != 1 || len(ord.names) != 1 {
+		t.Errorf("unknown %d, samples %d, names kept %d; want 50000, 1, 1", rep.Counts[UnknownTank], len(got), len(ord.names))
+	}
+}

@@ -29,10 +29,13 @@ const (
 	Malformed ProblemKind = "malformed"
 	// UnknownTank: the tank is not among the tanks being read.
 	UnknownTank ProblemKind = "unknown_tank"
+	// OutOfRange: the reading converts to a level outside the tank
+	// (Conversion.MinHeadM, MaxHeadM), or to no level at all.
+	OutOfRange ProblemKind = "out_of_range"
 )
 
 // Kinds lists every ProblemKind in a fixed order (the order of Report.String).
-var Kinds = []ProblemKind{OutOfOrder, DuplicateTime, NaN, EmptyValue, Truncated, Malformed, UnknownTank}
+var Kinds = []ProblemKind{OutOfOrder, DuplicateTime, NaN, EmptyValue, Truncated, Malformed, UnknownTank, OutOfRange}
 
 // MaxExamples is how many problems of each kind a Report keeps as examples.
 const MaxExamples = 5

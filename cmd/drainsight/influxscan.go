@@ -26,6 +26,10 @@ type influxTank struct {
 	inflowM3s float64
 	out       scan.Outcome
 	failed    bool
+	// outOfRange counts readings that are no level of the tank (the first
+	// described in firstBad); they are logged, not analysed.
+	outOfRange int
+	firstBad   string
 }
 
 // pulledWindow is one window's samples per tank, or the error that stopped it.
@@ -154,8 +158,12 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 				if t == nil || tNs <= t.lastNs {
 					return
 				}
-				h := t.p.conv.Sensor.HeadM(v, t.p.conv.OutletElevM)
-				if math.IsNaN(h) {
+				h, bad := t.p.conv.Head(v)
+				if bad != "" {
+					t.outOfRange++
+					if t.outOfRange == 1 {
+						t.firstBad = fmt.Sprintf("%s at %s", bad, time.Unix(0, tNs).UTC().Format(time.RFC3339))
+					}
 					return
 				}
 				t.lastNs = tNs
@@ -229,6 +237,9 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 	}
 	outs := make([]scan.Outcome, 0, len(tanks))
 	for _, t := range tanks {
+		if t.outOfRange > 0 {
+			j.log.Warn("readings out of the tank's range, not analysed", "tank", t.p.cfg.ID, "count", t.outOfRange, "first", t.firstBad)
+		}
 		t.out.Collect(t.run)
 		if t.run != nil && t.out.Err != nil {
 			t.out.Evals = t.run.Evals // evaluated before the failure

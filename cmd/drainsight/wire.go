@@ -83,7 +83,11 @@ func buildPlan(ct config.Tank) (*plan, error) {
 			return nil, fmt.Errorf("sensor.calibration: %w", err)
 		}
 	}
-	conv := ingest.Conversion{Sensor: s, OutletElevM: ct.Outlet.ElevationM}
+	// Readings beyond the tank by more than rangeMargin are not levels
+	// (a wrong unit or span, a transmitter fault, a corrupt value).
+	margin := max(rangeMarginM, rangeMarginShare*t.Shape.HeightM())
+	conv := ingest.Conversion{Sensor: s, OutletElevM: ct.Outlet.ElevationM,
+		MinHeadM: -ct.Outlet.ElevationM - margin, MaxHeadM: t.Shape.HeightM() - ct.Outlet.ElevationM + margin}
 	if ct.Sensor.Inflow != nil {
 		conv.InflowToSI = ct.Sensor.Inflow.ToSI
 	}
@@ -159,3 +163,12 @@ func writeBackSink(ct *config.Tank) string {
 	}
 	return "influx:" + ct.Site
 }
+
+// A reading is out of range when it lies beyond the tank's bottom or top by
+// more than rangeMarginShare of its height, and at least rangeMarginM:
+// room for a zero offset, a drifting transmitter (which the sensor checks
+// must see) and a level in the overflow, not for a wrong unit.
+const (
+	rangeMarginM     = 0.1
+	rangeMarginShare = 0.1
+)
