@@ -28,7 +28,64 @@ func newLineReader(r io.Reader, max int) *lineReader {
 	if max <= 0 {
 		max = DefaultMaxLineBytes
 	}
-	return &lineReader{br: bufio.NewReaderSize(r, 64<<10), max: max}
+	return &lineReader{br: bufio.NewReaderSize(&crReader{r: r}, 64<<10), max: max}
+}
+
+// crReader turns a carriage return that is not followed by a line feed into
+// a line feed, so that files with old Macintosh line ends ("\r" alone) are
+// read line by line like "\n" and "\r\n" files instead of as one over-long
+// line. A "\r" at the end of a read waits for the next byte.
+type crReader struct {
+	r       io.Reader
+	pending bool // a "\r" held back from the previous read
+	err     error
+}
+
+func (c *crReader) Read(p []byte) (int, error) {
+	if len(p) == 0 {
+		return 0, nil
+	}
+	off := 0
+	if c.pending {
+		p[0] = '\r'
+		off = 1
+	}
+	if c.err != nil {
+		c.pending = false
+		if off == 1 {
+			p[0] = '\n' // a final lone "\r"
+			return 1, nil
+		}
+		return 0, c.err
+	}
+	n, err := c.r.Read(p[off:])
+	n += off
+	c.err = err
+	c.pending = false
+	for i := 0; i < n; {
+		j := bytes.IndexByte(p[i:n], '\r')
+		if j < 0 {
+			break
+		}
+		i += j
+		switch {
+		case i+1 < n:
+			if p[i+1] != '\n' {
+				p[i] = '\n'
+			}
+		case err == nil:
+			// the last byte: whether a "\n" follows is in the next read
+			c.pending = true
+			n--
+		default:
+			p[i] = '\n'
+		}
+		i++
+	}
+	if c.pending || n > 0 {
+		return n, nil
+	}
+	return n, err
 }
 
 // next returns the next line without its "\n" or "\r\n". The slice is valid

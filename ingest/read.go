@@ -240,7 +240,7 @@ func readFile(ctx context.Context, path string, format Format, opt ReadOptions, 
 		}
 		line, noEOL, tooLong, err := lr.next()
 		if errors.Is(err, io.EOF) {
-			return rep, nil
+			return rep, unreadable(path, &rep)
 		}
 		rep.Lines++
 		if err != nil {
@@ -293,6 +293,25 @@ func readFile(ctx context.Context, path string, format Format, opt ReadOptions, 
 		}
 		problem(kind, text)
 	}
+}
+
+// unreadable is the error of a file none of whose lines parsed (every line
+// that is not a header, comment or blank one malformed or truncated): a
+// wrong format, a binary file, an encoding the reader does not know. Its
+// problems are in rep as well; nil for any other file.
+func unreadable(path string, rep *Report) error {
+	bad := rep.Counts[Malformed] + rep.Counts[Truncated]
+	if bad == 0 || rep.Samples > 0 || rep.Foreign > 0 || bad != rep.Lines-rep.Ignored {
+		return nil
+	}
+	first := ""
+	for _, p := range rep.Examples {
+		if p.Kind == Malformed || p.Kind == Truncated {
+			first = fmt.Sprintf("; line %d: %s", p.Line, p.Text)
+			break
+		}
+	}
+	return fmt.Errorf("ingest: %s: no line of its %d could be read%s", path, rep.Lines, first)
 }
 
 // Conversion turns one tank's raw readings into head (and inflow into m^3/s).

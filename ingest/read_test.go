@@ -7,11 +7,13 @@ import (
 	"drainsight/model"
 	"flag"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+	"testing/iotest"
 	"time"
 )
 
@@ -446,5 +448,53 @@ func TestUnknownTanksNotInterned(t *testing.T) {
 	}
 	if rep.Counts[UnknownTank] != 50000 || len(got) != 1 || len(ord.names) != 1 {
 		t.Errorf("unknown %d, samples %d, names kept %d; want 50000, 1, 1", rep.Counts[UnknownTank], len(got), len(ord.names))
+	}
+}
+
+// Line ends of every kind read the same samples, also when the reader
+// hands the bytes over one at a time (a "\r" at the end of a read waits for
+// the next byte): "\n", "\r\n" and a lone "\r" (old Macintosh files).
+func TestReadLineEnds(t *testing.T) {
+	rows := []string{"time,tank,value", "2024-03-01T00:00:00Z,T1,1.5", "2024-03-01T00:00:10Z,T1,1.4", "2024-03-01T00:00:20Z,T1,1.3"}
+	for _, eol := range []string{"\n", "\r\n", "\r"} {
+		for _, oneByte := range []bool{false, true} {
+			body := strings.Join(rows, eol) + eol
+			var r io.Reader = strings.NewReader(body)
+			if oneByte {
+				r = iotest.OneByteReader(r)
+			}
+			lr := newLineReader(r, 0)
+			var got []string
+			for {
+				line, _, tooLong, err := lr.next()
+				if err != nil {
+					break
+				}
+				if tooLong {
+					t.Fatalf("eol %q: a line too long", eol)
+				}
+				got = append(got, string(line))
+			}
+			if strings.Join(got, "|") != strings.Join(rows, "|") {
+				t.Errorf("eol %q one byte %v: lines %q, want %q", eol, oneByte, got, rows)
+			}
+		}
+	}
+}
+
+// A file none of whose lines can be read (here line protocol given as
+// CSV) is an error naming the file and the first bad line, not a read that
+// silently gives nothing.
+func TestReadUnreadableFileIsAnError(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "wrong.csv")
+	if err := os.WriteFile(path, []byte("time,tank,value\nlvl,tank=T1 level=1 100\nlvl,tank=T1 level=2 200\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, rep, err := ReadSeries(context.Background(), []string{path}, FormatCSV, ReadOptions{}, map[string]Conversion{"T1": {Sensor: Sensor{Kind: Depth, UnitToSI: 1}}})
+	if err == nil || !strings.Contains(err.Error(), "wrong.csv") || !strings.Contains(err.Error(), "line 2") {
+		t.Errorf("unreadable file: err %v, want one naming the file and line 2", err)
+	}
+	if rep.Counts[Malformed] != 2 {
+		t.Errorf("malformed %d, want 2", rep.Counts[Malformed])
 	}
 }
