@@ -125,6 +125,10 @@ func (p *lpParser) parse(line []byte) lpResult {
 			return lpBad(Malformed, "empty tag value in %s", excerpt(line))
 		}
 		if string(unescapeLP(p.scratch, key, ",= ")) == p.tankTag {
+			if tank != nil {
+				// which one is meant cannot be known: neither is taken
+				return lpBad(Malformed, "tag %q given twice in %s", p.tankTag, excerpt(line))
+			}
 			tank = unescapeLP(nil, b[vs:i], ",= ")
 		}
 	}
@@ -164,9 +168,15 @@ func (p *lpParser) parse(line []byte) lpResult {
 		}
 		k := unescapeLP(p.scratch, key, ",= ")
 		switch {
-		case !r.hasLevel && string(k) == p.field:
+		case string(k) == p.field:
+			if r.hasLevel {
+				return lpBad(Malformed, "field %q given twice in %s", p.field, excerpt(line))
+			}
 			levelRaw, r.hasLevel = b[vs:i], true
-		case p.inflowField != "" && !r.hasInflow && string(k) == p.inflowField:
+		case p.inflowField != "" && string(k) == p.inflowField:
+			if r.hasInflow {
+				return lpBad(Malformed, "field %q given twice in %s", p.inflowField, excerpt(line))
+			}
 			inflowRaw, r.hasInflow = b[vs:i], true
 		}
 		if i < len(b) && b[i] == ',' {

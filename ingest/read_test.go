@@ -113,7 +113,7 @@ func TestReadLineProtocolProblems(t *testing.T) {
 		t.Errorf("samples\n got %v\nwant %v", got, want)
 	}
 	wantCounts := map[ProblemKind]int64{
-		DuplicateTime: 1, OutOfOrder: 1, NaN: 1, EmptyValue: 1, UnknownTank: 1, Malformed: 10, Truncated: 1,
+		DuplicateTime: 1, OutOfOrder: 1, NaN: 1, EmptyValue: 1, UnknownTank: 1, Malformed: 12, Truncated: 1,
 	}
 	for _, k := range Kinds {
 		if rep.Counts[k] != wantCounts[k] {
@@ -496,5 +496,24 @@ func TestReadUnreadableFileIsAnError(t *testing.T) {
 	}
 	if rep.Counts[Malformed] != 2 {
 		t.Errorf("malformed %d, want 2", rep.Counts[Malformed])
+	}
+}
+
+// A tag or field that line protocol gives twice on one line is malformed,
+// never resolved silently to one of the two values.
+func TestLineProtocolDuplicates(t *testing.T) {
+	p := lpParser{field: "level", inflowField: "q", tankTag: "tank", prec: PrecisionNs}
+	for _, c := range []struct{ line, want string }{
+		{"lvl,tank=T1,tank=T2 level=1 100", `tag "tank" given twice`},
+		{"lvl,tank=T1 level=1,level=2 100", `field "level" given twice`},
+		{"lvl,tank=T1 level=1,q=2,q=3 100", `field "q" given twice`},
+	} {
+		r := p.parse([]byte(c.line))
+		if r.kind != Malformed || !strings.Contains(r.text, c.want) {
+			t.Errorf("%s: %s %q, want malformed: %s", c.line, r.kind, r.text, c.want)
+		}
+	}
+	if r := p.parse([]byte("lvl,tank=T1,site=a level=1,other=1,q=2 100")); r.kind != "" || !r.hasLevel || !r.hasInflow {
+		t.Errorf("a line with each once: %+v", r)
 	}
 }
