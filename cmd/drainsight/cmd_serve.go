@@ -17,7 +17,9 @@ outputs.scan_schedule and the outlet-health report on outputs.report.schedule
 (cron specs, time zone outputs.report.time_zone). A scan still running when
 the next is due is skipped, a panic in a run is logged and the next run goes
 ahead. Missed runs are not caught up, except that a scan runs at start-up.
-Keep local-time schedules out of 01:00-03:00 where clocks change.`
+Keep local-time schedules out of 01:00-03:00 where clocks change. After the
+first successful scan of each UTC day a copy of the state file is written to
+backups/ beside it; the last 7 are kept (drainsight state --help).`
 
 func runServe(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "serve", "serve --config FILE", serveAbout)
@@ -46,6 +48,12 @@ func runServe(ctx context.Context, e *env, args []string) error {
 		defer turn.Unlock()
 		if _, err := scanOnce(ctx, e, cfg, "", "", scanOptions{}, log); err != nil {
 			log.Error("scheduled scan failed", "err", err)
+			return
+		}
+		if name, err := dailyBackup(cfg.Outputs.StateFile, time.Now()); err != nil {
+			log.Error("daily backup of the state file failed", "err", err)
+		} else if name != "" {
+			log.Info("state file backed up", "file", name)
 		}
 	}
 	rep := func() {

@@ -5,7 +5,9 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
+	"time"
 
 	"drainsight/config"
 	"drainsight/store"
@@ -25,6 +27,9 @@ notifications).
       writes a consistent copy of the file while it stays in use (one read
       transaction; a running serve need not stop). Keep copies off the
       machine, with the outputs directory.
+
+serve writes a copy a day after its first successful scan of the UTC day
+(backups/state-YYYY-MM-DD.db beside the state file) and keeps the last 7.
 
 Restoring: stop serve (or wait for the scan to end), copy the backup over the
 state file, and run scan. Passes after the backup's time are re-read from
@@ -104,4 +109,51 @@ func runState(ctx context.Context, e *env, args []string) error {
 		return nil
 	}
 	return &usageError{fmt.Sprintf("state: unknown verb %q (want check or backup)", verb)}
+}
+
+// keepBackups is how many daily copies of the state file serve keeps.
+const keepBackups = 7
+
+// dailyBackup writes today's copy of the state file (UTC day) into the
+// backups directory beside it, unless there is one already, and keeps the
+// newest keepBackups copies. serve runs it after each successful scan.
+func dailyBackup(statePath string, now time.Time) (string, error) {
+	dir := filepath.Join(filepath.Dir(statePath), "backups")
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return "", err
+	}
+	name := filepath.Join(dir, "state-"+now.UTC().Format("2006-01-02")+".db")
+	if _, err := os.Stat(name); err == nil {
+		return "", nil
+	}
+	st, err := store.Open(statePath, 0)
+	if err != nil {
+		return "", err
+	}
+	tmp, err := os.CreateTemp(dir, ".backup-*")
+	if err == nil {
+		_, err = st.Backup(tmp)
+		if cerr := tmp.Close(); err == nil {
+			err = cerr
+		}
+		if err == nil {
+			err = os.Rename(tmp.Name(), name)
+		}
+		if err != nil {
+			os.Remove(tmp.Name())
+		}
+	}
+	if cerr := st.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		return "", fmt.Errorf("daily backup of %s: %w", statePath, err)
+	}
+	old, _ := filepath.Glob(filepath.Join(dir, "state-????-??-??.db"))
+	sort.Strings(old) // the dates sort as the names do
+	for len(old) > keepBackups {
+		os.Remove(old[0])
+		old = old[1:]
+	}
+	return name, nil
 }

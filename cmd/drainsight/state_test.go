@@ -5,6 +5,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 )
 
 // TestStateCheckBackupAndDamage: `state check` calls a sound file sound,
@@ -49,5 +50,38 @@ func TestStateCheckBackupAndDamage(t *testing.T) {
 	}
 	if _, stderr, err := runArgs(t, "scan", "--config", filepath.Join(dir, "demo.yaml"), "--out", t.TempDir()); err != nil {
 		t.Errorf("scan after restoring the backup: %v\n%s", err, stderr)
+	}
+}
+
+// serve's daily copy: one per UTC day, the newest seven kept, each a sound
+// state file.
+func TestDailyBackup(t *testing.T) {
+	dir := t.TempDir()
+	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
+		t.Fatalf("demo: %v\n%s", err, stderr)
+	}
+	state := filepath.Join(dir, "state.db")
+	day := time.Date(2031, 5, 1, 9, 0, 0, 0, time.UTC)
+	var names []string
+	for i := range 10 {
+		for range 2 { // a second scan the same day writes nothing
+			name, err := dailyBackup(state, day.AddDate(0, 0, i))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if name != "" {
+				names = append(names, name)
+			}
+		}
+	}
+	if len(names) != 10 {
+		t.Errorf("%d copies written over 10 days of two scans, want 10", len(names))
+	}
+	kept, _ := filepath.Glob(filepath.Join(dir, "backups", "state-*.db"))
+	if len(kept) != keepBackups || !strings.HasSuffix(kept[0], "2031-05-04.db") {
+		t.Errorf("kept %v, want the 7 newest (from 2031-05-04)", kept)
+	}
+	if out, _, err := runArgs(t, "state", "check", "--state", kept[len(kept)-1]); err != nil || !strings.Contains(out, "sound") {
+		t.Errorf("check of the newest copy: %v %s", err, out)
 	}
 }
