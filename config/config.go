@@ -258,6 +258,34 @@ type AlertSettings struct {
 	WebhookURL    string   // optional; a secret in many services: never log it
 	WebhookURLEnv string   // optional: environment variable holding the webhook URL
 	Command       []string // optional argv run per alert (no shell)
+	// The webhook's signing secret (HMAC-SHA256, see alert.Sign): from the
+	// environment variable SecretEnv or the file SecretFile, never the
+	// config. Neither set: requests are not signed.
+	SecretEnv, SecretFile string
+}
+
+// Secret returns the webhook signing secret ("" when none is configured).
+// It is a secret: never log it.
+func (a *AlertSettings) Secret() (string, error) {
+	switch {
+	case a.SecretEnv != "":
+		t, ok := os.LookupEnv(a.SecretEnv)
+		if !ok || strings.TrimSpace(t) == "" {
+			return "", fmt.Errorf("config: outputs.alert.webhook_secret_env: environment variable %s is empty or not set", a.SecretEnv)
+		}
+		return strings.TrimSpace(t), nil
+	case a.SecretFile != "":
+		b, err := os.ReadFile(a.SecretFile)
+		if err != nil {
+			var pe *os.PathError
+			if errors.As(err, &pe) {
+				err = pe.Err
+			}
+			return "", fmt.Errorf("config: outputs.alert.webhook_secret_file %s: %w", a.SecretFile, err)
+		}
+		return strings.TrimSpace(string(b)), nil
+	}
+	return "", nil
 }
 
 // Site returns the site with the given id, or nil.

@@ -881,6 +881,14 @@ func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 			d.add(path+".alert.webhook_url", un, "give webhook_url or webhook_url_env, not both")
 		}
 	}
+	o.Alert.SecretEnv = af.str("webhook_secret_env", "")
+	o.Alert.SecretFile = d.resolve(af.str("webhook_secret_file", ""))
+	if o.Alert.SecretEnv != "" && o.Alert.SecretFile != "" {
+		d.add(path+".alert.webhook_secret_env", af.get("webhook_secret_env"), "give webhook_secret_env or webhook_secret_file, not both")
+	}
+	if _, _, ok := af.scalar("webhook_secret"); ok {
+		d.add(path+".alert.webhook_secret", af.get("webhook_secret"), "secrets are not allowed in the config file; name an environment variable with webhook_secret_env or a file with webhook_secret_file")
+	}
 	if cn := af.get("command"); cn != nil && cn.Kind == yaml.ScalarNode {
 		d.add(path+".alert.command", cn, "want a list: the program and its arguments (no shell)")
 	} else {

@@ -346,3 +346,35 @@ func TestMergeKeyFanOutBounded(t *testing.T) {
 		t.Errorf("%d mappings resolved for 12 mapping nodes: merges are expanded per path", d.calls)
 	}
 }
+
+// The webhook's signing secret comes from the environment or a file, never
+// the config; giving both is a mistake.
+func TestWebhookSecretSettings(t *testing.T) {
+	const tank = `
+tanks:
+  - id: A
+    geometry: {shape: sphere, diameter: 2 m}
+    outlet: {elevation: 0}
+    sensor: {kind: pressure, unit: psi}
+    source: {format: csv, paths: [a.csv]}
+outputs:
+  alert:
+`
+	for _, c := range []struct{ alert, want string }{
+		{"    webhook_secret: hunter2\n", "secrets are not allowed"},
+		{"    webhook_secret_env: X\n    webhook_secret_file: f\n", "not both"},
+	} {
+		_, err := Parse([]byte(tank+c.alert), "p.yaml")
+		if err == nil || !strings.Contains(err.Error(), c.want) || strings.Contains(err.Error(), "hunter2") {
+			t.Errorf("%q: %v, want a problem saying %q (and never the secret)", c.alert, err, c.want)
+		}
+	}
+	c, err := Parse([]byte(tank+"    webhook_secret_env: DRAINSIGHT_TEST_SECRET\n"), "p.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Setenv("DRAINSIGHT_TEST_SECRET", " k3y \n")
+	if s, err := c.Outputs.Alert.Secret(); err != nil || s != "k3y" {
+		t.Errorf("secret %q, %v; want k3y", s, err)
+	}
+}

@@ -24,9 +24,9 @@ func notifiers(a config.AlertSettings, log *slog.Logger) map[string]alert.Notifi
 	}
 	switch {
 	case a.WebhookURLEnv != "":
-		ns["notify:webhook"] = webhookFromEnv{env: a.WebhookURLEnv}
+		ns["notify:webhook"] = webhookFromEnv{env: a.WebhookURLEnv, settings: a}
 	case a.WebhookURL != "":
-		ns["notify:webhook"] = alert.WebhookNotifier{URL: a.WebhookURL}
+		ns["notify:webhook"] = webhookFromEnv{url: a.WebhookURL, settings: a}
 	}
 	if len(a.Command) > 0 {
 		ns["notify:command"] = alert.CommandNotifier{Argv: a.Command}
@@ -34,17 +34,27 @@ func notifiers(a config.AlertSettings, log *slog.Logger) map[string]alert.Notifi
 	return ns
 }
 
-// webhookFromEnv reads the webhook's URL from its environment variable at
-// each delivery: an unset variable fails the delivery (the transition stays
-// queued) with a message naming the setting, never the URL.
-type webhookFromEnv struct{ env string }
+// webhookFromEnv reads the webhook's URL (from its environment variable,
+// when it is given so) and its signing secret at each delivery: an unset
+// variable or an unreadable secret fails the delivery (the transition stays
+// queued) with a message naming the setting, never the URL or the secret.
+type webhookFromEnv struct {
+	env, url string
+	settings config.AlertSettings
+}
 
 func (w webhookFromEnv) Notify(ctx context.Context, evs []alert.Event) error {
-	url := os.Getenv(w.env)
-	if url == "" {
-		return fmt.Errorf("alert: webhook not sent: environment variable %s (setting outputs.alert.webhook_url_env) is empty or unset", w.env)
+	url := w.url
+	if w.env != "" {
+		if url = os.Getenv(w.env); url == "" {
+			return fmt.Errorf("alert: webhook not sent: environment variable %s (setting outputs.alert.webhook_url_env) is empty or unset", w.env)
+		}
 	}
-	return alert.WebhookNotifier{URL: url}.Notify(ctx, evs)
+	secret, err := w.settings.Secret()
+	if err != nil {
+		return fmt.Errorf("alert: webhook not sent: %w", err)
+	}
+	return alert.WebhookNotifier{URL: url, Secret: secret}.Notify(ctx, evs)
 }
 
 // notifyPlan is where this pass's transitions are queued: the notifiers
