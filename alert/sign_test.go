@@ -57,8 +57,8 @@ func TestWebhookSignedRequest(t *testing.T) {
 	}
 	changed := []byte(strings.Replace(string(body), "B2", "B3", 1))
 	for name, err := range map[string]error{
-		"changed body": Verify("s3cret-for-the-test", ts, sig, changed, at, 5*time.Minute),
-		"wrong secret": Verify("another", ts, sig, body, at, 5*time.Minute),
+		"changed body":     Verify("s3cret-for-the-test", ts, sig, changed, at, 5*time.Minute),
+		"wrong secret":     Verify("another", ts, sig, body, at, 5*time.Minute),
 		"replay 1 h later": Verify("s3cret-for-the-test", ts, sig, body, at.Add(time.Hour), 5*time.Minute),
 	} {
 		if err == nil {
