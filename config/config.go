@@ -43,6 +43,7 @@ type Influx struct {
 	FindingsMeasurement string        // default "outlet_finding": write-back of findings
 	SettleDelay         time.Duration // default 5 min: data younger than this is not read yet
 	Overlap             time.Duration // default 1 h: re-read before a tank's checkpoint; the command always re-reads at least 12 h
+	QueryLanguage       string        // default "flux"; "influxql" reads over the v1 /query API (InfluxDB 3, or Flux turned off)
 }
 
 // Token returns the token from TokenEnv or TokenFile (surrounding white space

@@ -237,6 +237,10 @@ func (d *decoder) influx(n *yaml.Node, path string) *Influx {
 		FindingsMeasurement: f.str("findings_measurement", "outlet_finding"),
 		SettleDelay:         quantity(f, "settle_delay", 5*time.Minute, ParseDuration, nonNegativeDuration),
 		Overlap:             quantity(f, "overlap", time.Hour, ParseDuration, nonNegativeDuration),
+		QueryLanguage:       f.str("query_language", "flux"),
+	}
+	if l := in.QueryLanguage; l != "flux" && l != "influxql" {
+		d.add(join(path, "query_language"), f.get("query_language"), "want flux or influxql (InfluxQL over the v1 /query API, for InfluxDB 3 or a server without Flux)")
 	}
 	for _, k := range []string{"token", "password", "api_token", "auth_token"} {
 		if _, ok := f.vals[k]; ok {

@@ -98,6 +98,32 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 		t.Errorf("findings differ:\nfiles:  %v\ninflux: %v", ff, df)
 	}
 
+	// The same server read through InfluxQL over the v1 /query API (what
+	// InfluxDB 3 offers) gives the same drains, K and findings as Flux.
+	{
+		y, err := os.ReadFile(filepath.Join(db, "demo.yaml"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		ql := strings.ReplaceAll(string(y), "      query_window: 24 h\n", "      query_window: 24 h\n      query_language: influxql\n")
+		qlCfg, qlOut := filepath.Join(t.TempDir(), "influxql.yaml"), t.TempDir()
+		if err := os.WriteFile(qlCfg, []byte(ql), 0o600); err != nil {
+			t.Fatal(err)
+		}
+		if _, stderr, err := runArgs(t, "backfill", "--config", qlCfg, "--state", filepath.Join(t.TempDir(), "ql.db"), "--out", qlOut,
+			"--since", "2026-01-01", "--until", "2026-02-14"); err != nil && exitCode(err) != 1 {
+			t.Fatalf("InfluxQL backfill: %v\n%s", err, stderr)
+		}
+		qe, qk := drainKeys(t, filepath.Join(qlOut, "events.jsonl"))
+		if strings.Join(qe, "\n") != strings.Join(de, "\n") {
+			t.Errorf("InfluxQL drains differ from Flux: %d vs %d\nonly InfluxQL: %v\nonly Flux: %v", len(qe), len(de), head(minus(qe, de)), head(minus(de, qe)))
+		}
+		if bad := sameK(qk, dk, 1e-9); len(bad) > 0 {
+			t.Errorf("K differs between InfluxQL and Flux: %v", head(bad))
+		}
+		t.Logf("InfluxQL: %d drains, as Flux", len(qe))
+	}
+
 	// Backfill the same history with the server killed part-way and
 	// restarted: after it completes (resuming if it gave up), every drain is
 	// stored once, none lost. K is compared to 0.1 %: the segmenter's

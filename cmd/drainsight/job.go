@@ -68,7 +68,7 @@ func openClients(cfg *config.Config) (map[string]*influx.Client, error) {
 		if err == nil {
 			var c *influx.Client
 			c, err = influx.New(influx.Conn{URL: s.Influx.URL, Org: s.Influx.Org, Bucket: s.Influx.Bucket, Token: tok},
-				influx.Options{QueryTimeout: s.Influx.Timeout, WriteTimeout: s.Influx.Timeout})
+				influx.Options{QueryTimeout: s.Influx.Timeout, WriteTimeout: s.Influx.Timeout, Language: s.Influx.QueryLanguage})
 			clients[s.ID] = c
 		}
 		if err != nil {

@@ -139,6 +139,10 @@ type Options struct {
 	// (annotated CSV shrinks about tenfold) at the cost of CPU on both ends;
 	// leave it off on a LAN, where decompressing costs more than the bytes.
 	QueryGzip bool
+	// Language is the query language: LanguageFlux (the default) over
+	// /api/v2/query, or LanguageInfluxQL over the v1 /query endpoint, for
+	// servers without Flux (InfluxDB 3) or where it is turned off.
+	Language string
 }
 
 func (o Options) withDefaults() Options {
@@ -153,6 +157,9 @@ func (o Options) withDefaults() Options {
 	}
 	if o.AppName == "" {
 		o.AppName = "drainsight"
+	}
+	if o.Language == "" {
+		o.Language = LanguageFlux
 	}
 	o.Retry = o.Retry.withDefaults()
 	return o
@@ -176,6 +183,9 @@ func New(conn Conn, opt Options) (*Client, error) {
 		return nil, err
 	}
 	opt = opt.withDefaults()
+	if opt.Language != LanguageFlux && opt.Language != LanguageInfluxQL {
+		return nil, fmt.Errorf("influx: query language %q: want %q or %q", opt.Language, LanguageFlux, LanguageInfluxQL)
+	}
 	tr := &http.Transport{
 		Proxy:                 http.ProxyFromEnvironment,
 		DialContext:           (&net.Dialer{Timeout: 10 * time.Second, KeepAlive: 30 * time.Second}).DialContext,

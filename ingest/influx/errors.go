@@ -49,6 +49,16 @@ func (c *Client) classify(parent context.Context, op string, err error) verdict 
 	if parent.Err() != nil {
 		return verdict{final: fmt.Errorf("influx: %s: %w", op, err)}
 	}
+	var qe errQL
+	if errors.As(err, &qe) {
+		// /query answers a wrong database or retention policy, and a
+		// query it cannot run, with 200 and the error inside.
+		if m := strings.ToLower(qe.msg); strings.Contains(m, "database not found") || strings.Contains(m, "retention policy not found") {
+			return verdict{final: &ConfigError{Op: op, URL: redactURL(c.conn.URL), Setting: "bucket", StatusCode: 200,
+				Hint: fmt.Sprintf("now %q; for InfluxQL the database (\"db\" or \"db/rp\")", c.conn.Bucket), Err: err}}
+		}
+		return verdict{final: fmt.Errorf("influx: %s at %s: %w", op, redactURL(c.conn.URL), err)}
+	}
 	var he *ihttp.Error
 	if errors.As(err, &he) && he.StatusCode != 0 {
 		msg := strings.ToLower(he.Message + " " + he.Code)

@@ -127,14 +127,22 @@ func firstDiff(a, b []sample) int {
 }
 
 // hostileIDs are tank ids that break naive query building; every one must
-// round-trip through line protocol and Flux.
+// round-trip through line protocol and both query languages (Flux and
+// InfluxQL).
 var hostileIDs = []string{
 	`q"uote`, `back\slash`, `dollar${x}`, `${`, `sl/ash`, `/^(x|y)$/`, `sp ace,comma=eq`,
 	`ünï€`, `dbl\\back`, `.*`, `a\,b`, `end\`, `a\\`, "tab\tin", "new\nline",
 }
 
 func TestIntegrationHostileTankIDs(t *testing.T) {
-	c := integrationClient(t, integrationConn(t), Options{})
+	for _, lang := range []string{LanguageFlux, LanguageInfluxQL} {
+		t.Run(lang, func(t *testing.T) { hostileRoundTrip(t, lang) })
+	}
+}
+
+// hostileRoundTrip writes every hostile id and reads it back in lang.
+func hostileRoundTrip(t *testing.T, lang string) {
+	c := integrationClient(t, integrationConn(t), Options{Language: lang})
 	ctx := context.Background()
 	meas := testMeasurement(t)
 	var ok []string
@@ -174,7 +182,8 @@ func TestIntegrationHostileTankIDs(t *testing.T) {
 	if len(got) > len(ok) {
 		t.Errorf("got %d tanks, want %d: %q", len(got), len(ok), slices.Collect(mapsKeys(got)))
 	}
-	// The hostile spec of the golden test must be valid Flux on the server.
+	// The hostile spec of the golden test must be a valid query on the
+	// server.
 	hs, err := c.Source(SeriesSpec{Measurement: `lvl "x" ${m}`, Field: `f\n`, TankTag: "tank id",
 		Tags: map[string]string{"and": `a"b`, "si/te": "${site}"}})
 	if err != nil {

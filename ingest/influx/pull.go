@@ -133,8 +133,8 @@ func (s *Source) Pull(ctx context.Context, tanks []string, startNs, stopNs int64
 	if stopNs <= startNs {
 		return 0, nil
 	}
-	rows := func(body io.Reader) *csvRows { return newCSVRows(body, s.spec.TankTag) }
-	return s.pull(ctx, s.pullFlux(tanks, startNs, stopNs), rows, startNs, stopNs,
+	open, rows := s.query(tanks, startNs, stopNs, false)
+	return s.pull(ctx, open, rows, startNs, stopNs,
 		func(tank string, tNs int64, v, _ float64) { add(tank, tNs, v) })
 }
 
@@ -154,28 +154,57 @@ func (s *Source) PullWithInflow(ctx context.Context, tanks []string, startNs, st
 		return 0, nil
 	}
 	if s.spec.InflowField == "" {
-		rows := func(body io.Reader) *csvRows { return newCSVRows(body, s.spec.TankTag) }
-		return s.pull(ctx, s.pullFlux(tanks, startNs, stopNs), rows, startNs, stopNs,
+		open, rows := s.query(tanks, startNs, stopNs, false)
+		return s.pull(ctx, open, rows, startNs, stopNs,
 			func(tank string, tNs int64, v, _ float64) { add(tank, tNs, v, math.NaN()) })
 	}
-	rows := func(body io.Reader) *csvRows {
-		return newCSVPairRows(body, s.spec.TankTag, s.spec.Field, s.spec.InflowField)
-	}
-	return s.pull(ctx, s.pullInflowFlux(tanks, startNs, stopNs), rows, startNs, stopNs, add)
+	open, rows := s.query(tanks, startNs, stopNs, true)
+	return s.pull(ctx, open, rows, startNs, stopNs, add)
 }
 
-// pull runs flux with retries and hands each row that rows returns in
+// pairRows is a result stream: one sample (and a second value) per call.
+type pairRows interface {
+	nextPair() (tank []byte, tNs int64, v, aux float64, ok bool, err error)
+}
+
+// query returns how to send the window's query in the client's language and
+// how to read its result.
+func (s *Source) query(tanks []string, startNs, stopNs int64, inflow bool) (func(context.Context) (io.ReadCloser, error), func(io.Reader) pairRows) {
+	if s.c.opt.Language == LanguageInfluxQL {
+		q := s.InfluxQL(tanks, startNs, stopNs, inflow)
+		aux := ""
+		if inflow {
+			aux = s.spec.InflowField
+		}
+		return func(ctx context.Context) (io.ReadCloser, error) { return s.c.openInfluxQL(ctx, q) },
+			func(body io.Reader) pairRows { return newQLRows(body, s.spec.TankTag, s.spec.Field, aux) }
+	}
+	flux := s.pullFlux(tanks, startNs, stopNs)
+	rows := func(body io.Reader) pairRows { return newCSVRows(body, s.spec.TankTag) }
+	if inflow {
+		flux = s.pullInflowFlux(tanks, startNs, stopNs)
+		rows = func(body io.Reader) pairRows {
+			return newCSVPairRows(body, s.spec.TankTag, s.spec.Field, s.spec.InflowField)
+		}
+	}
+	return func(ctx context.Context) (io.ReadCloser, error) { return s.c.openQuery(ctx, flux) }, rows
+}
+
+// pull runs the query with retries and hands each row that rows returns in
 // [startNs, stopNs) to add once, resuming after the last delivered row when
 // an attempt fails mid-stream.
-func (s *Source) pull(ctx context.Context, flux string, newRows func(io.Reader) *csvRows, startNs, stopNs int64,
+func (s *Source) pull(ctx context.Context, open func(context.Context) (io.ReadCloser, error), newRows func(io.Reader) pairRows, startNs, stopNs int64,
 	add func(tank string, tNs int64, v, aux float64)) (n int, err error) {
 	marks := make(map[string]*tankMark)
-	op := fmt.Sprintf("query %s..%s", fluxTime(startNs), fluxTime(stopNs))
+	op := fmt.Sprintf("Flux query (/api/v2/query) %s..%s", fluxTime(startNs), fluxTime(stopNs))
+	if s.c.opt.Language == LanguageInfluxQL {
+		op = fmt.Sprintf("InfluxQL query (/query) %s..%s", fluxTime(startNs), fluxTime(stopNs))
+	}
 	err = s.c.retry(ctx, op, s.c.opt.QueryTimeout, func(ctx context.Context) error {
 		for _, m := range marks {
 			m.runSet = false
 		}
-		body, err := s.c.openQuery(ctx, flux)
+		body, err := open(ctx)
 		if err != nil {
 			return err
 		}
