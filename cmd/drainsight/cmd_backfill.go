@@ -25,6 +25,7 @@ by scan.`
 func runBackfill(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "backfill", "backfill --config FILE --since DATE [--until DATE] [--out DIR]", backfillAbout)
 	cfgPath := fs.String("config", "", "configuration file (required)")
+	shardFlag := fs.String("shard", "", shardUsage)
 	since := fs.String("since", "", "start of the history, RFC 3339 or YYYY-MM-DD (required)")
 	until := fs.String("until", "", "end of the history (default: now minus the settle delay)")
 	outDir := fs.String("out", "", "output directory (default: outputs.directory of the config)")
@@ -55,6 +56,11 @@ func runBackfill(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	sh, err := parseShard(*shardFlag)
+	if err != nil {
+		return &usageError{err.Error()}
+	}
+	cfg = sh.apply(cfg)
 	last := time.Time{}
 	opt.progress = func(done, total int, what string) {
 		if isTerminal(e.stderr) {

@@ -69,6 +69,7 @@ pending), 2 bad usage, 3 with --fail-on-findings when a tank finding is active
 func runScan(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "scan", "scan --config FILE [--out DIR] [flags]", scanAbout)
 	cfgPath := fs.String("config", "", "configuration file (required)")
+	shardFlag := fs.String("shard", "", shardUsage)
 	outDir := fs.String("out", "", "output directory (default: outputs.directory of the config)")
 	statePath := fs.String("state", "", "state file (default: outputs.state_file of the config)")
 	nowFlag := fs.String("now", "", "evaluation time, RFC 3339 (default: newest sample for files, the clock for InfluxDB)")
@@ -90,6 +91,11 @@ func runScan(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	sh, err := parseShard(*shardFlag)
+	if err != nil {
+		return &usageError{err.Error()}
+	}
+	cfg = sh.apply(cfg)
 	res, err := scanOnce(ctx, e, cfg, *outDir, *statePath, scanOptions{now: now, final: *final}, log)
 	if err != nil {
 		return err

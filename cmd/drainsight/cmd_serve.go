@@ -24,6 +24,7 @@ backups/ beside it; the last 7 are kept (drainsight state --help).`
 func runServe(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "serve", "serve --config FILE", serveAbout)
 	cfgPath := fs.String("config", "", "configuration file (required)")
+	shardFlag := fs.String("shard", "", shardUsage)
 	verbose := fs.Bool("v", false, "debug logging")
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
@@ -36,6 +37,11 @@ func runServe(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	sh, err := parseShard(*shardFlag)
+	if err != nil {
+		return &usageError{err.Error()}
+	}
+	cfg = sh.apply(cfg)
 	loc := cfg.Outputs.Report.Location
 	if loc == nil {
 		loc = time.UTC
