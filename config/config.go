@@ -234,6 +234,40 @@ type Outputs struct {
 	StateFile    string // bbolt file; default Directory/state.db
 	ScanSchedule string // cron spec (5 fields or @descriptor); default "*/15 * * * *"
 	Delivery     DeliverySettings
+	HTTP         HTTPSettings
+}
+
+// HTTPSettings are serve's read-only HTTP endpoints (/healthz, /readyz,
+// /metrics, the status page).
+type HTTPSettings struct {
+	Address string // default "127.0.0.1:9470"; "off" serves nothing
+	// The bearer token guarding all but /healthz: from the environment
+	// variable TokenEnv or the file TokenFile, never the config. Neither:
+	// no token (keep the address on loopback then).
+	TokenEnv, TokenFile string
+}
+
+// Token returns the bearer token ("" when none is configured).
+func (h *HTTPSettings) Token() (string, error) {
+	switch {
+	case h.TokenEnv != "":
+		t, ok := os.LookupEnv(h.TokenEnv)
+		if !ok || strings.TrimSpace(t) == "" {
+			return "", fmt.Errorf("config: outputs.http.token_env: environment variable %s is empty or not set", h.TokenEnv)
+		}
+		return strings.TrimSpace(t), nil
+	case h.TokenFile != "":
+		b, err := os.ReadFile(h.TokenFile)
+		if err != nil {
+			var pe *os.PathError
+			if errors.As(err, &pe) {
+				err = pe.Err
+			}
+			return "", fmt.Errorf("config: outputs.http.token_file %s: %w", h.TokenFile, err)
+		}
+		return strings.TrimSpace(string(b)), nil
+	}
+	return "", nil
 }
 
 // DeliverySettings govern the outbox in the state file: notifications and

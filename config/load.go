@@ -3,6 +3,7 @@ package config
 import (
 	"errors"
 	"fmt"
+	"net"
 	"net/url"
 	"os"
 	"path/filepath"
@@ -908,6 +909,23 @@ func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 		d.add(path+".delivery.retry_max", df.get("retry_max"), "retry_max %v is shorter than retry_min %v", o.Delivery.RetryMax, o.Delivery.RetryMin)
 	}
 	df.done()
+
+	hf := d.mapping(f.get("http"), path+".http")
+	o.HTTP.Address = hf.str("address", "127.0.0.1:9470")
+	if a := o.HTTP.Address; a != "off" {
+		if _, _, err := net.SplitHostPort(a); err != nil {
+			d.add(path+".http.address", hf.get("address"), "want host:port (127.0.0.1:9470 keeps it on this machine), or off: %v", err)
+		}
+	}
+	o.HTTP.TokenEnv = hf.str("token_env", "")
+	o.HTTP.TokenFile = d.resolve(hf.str("token_file", ""))
+	if o.HTTP.TokenEnv != "" && o.HTTP.TokenFile != "" {
+		d.add(path+".http.token_env", hf.get("token_env"), "give token_env or token_file, not both")
+	}
+	if _, _, ok := hf.scalar("token"); ok {
+		d.add(path+".http.token", hf.get("token"), "secrets are not allowed in the config file; name an environment variable with token_env or a file with token_file")
+	}
+	hf.done()
 	f.done()
 	return o
 }

@@ -19,7 +19,16 @@ the next is due is skipped, a panic in a run is logged and the next run goes
 ahead. Missed runs are not caught up, except that a scan runs at start-up.
 Keep local-time schedules out of 01:00-03:00 where clocks change. After the
 first successful scan of each UTC day a copy of the state file is written to
-backups/ beside it; the last 7 are kept (drainsight state --help).`
+backups/ beside it; the last 7 are kept (drainsight state --help).
+
+On outputs.http.address (default 127.0.0.1:9470, this machine only; off for
+none) it answers, read-only: /healthz (the process is alive), /readyz (the
+last scan succeeded and every InfluxDB site answers a query), /metrics (for
+Prometheus: scans by result and their duration, samples read, drains fitted,
+falls rejected by reason, open findings by tank and kind, notifications and
+write-back pending, seconds since each feed's newest sample, the last
+success) and / (the fleet at the last scan). With outputs.http.token_env or
+token_file every page but /healthz needs "Authorization: Bearer <token>".`
 
 func runServe(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "serve", "serve --config FILE", serveAbout)
@@ -46,13 +55,28 @@ func runServe(ctx context.Context, e *env, args []string) error {
 	if loc == nil {
 		loc = time.UTC
 	}
+	mon := newMonitor()
+	if addr := cfg.Outputs.HTTP.Address; addr != "off" {
+		token, err := cfg.Outputs.HTTP.Token()
+		if err != nil {
+			return err
+		}
+		bound, _, err := serveHTTP(ctx, addr, mon.handler(token, sitesReady(cfg)), log)
+		if err != nil {
+			return err
+		}
+		log.Info("http", "address", bound, "token", token != "")
+	}
 	// The scan and the report share the state file (one process at a time
 	// holds its lock): they take turns.
 	var turn sync.Mutex
 	scan := func() {
 		turn.Lock()
 		defer turn.Unlock()
-		if _, err := scanOnce(ctx, e, cfg, "", "", scanOptions{}, log); err != nil {
+		start := time.Now()
+		res, err := scanOnce(ctx, e, cfg, "", "", scanOptions{}, log)
+		mon.record(res, time.Since(start), err)
+		if err != nil {
 			log.Error("scheduled scan failed", "err", err)
 			return
 		}
