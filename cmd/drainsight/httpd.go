@@ -231,7 +231,6 @@ func sitesReady(cfg *config.Config) func(context.Context) error {
 	}
 }
 
-
 // serveHTTP listens on addr until ctx ends; it returns the listener's
 // address (for a port of 0) and a channel closed when the server stopped.
 func serveHTTP(ctx context.Context, addr string, h http.Handler, log *slog.Logger) (string, <-chan struct{}, error) {
