@@ -78,6 +78,16 @@ func writeReportFiles(cfg *config.Config, statePath, dir string, now time.Time, 
 		return err
 	}
 	defer st.Close()
+	err = writeReport(cfg, plans, st, dir, now, log)
+	// serve writes a report missed while it was down at start-up: the
+	// store remembers when the last one was written
+	if rerr := st.RecordRun("report", time.Now().UnixNano(), err); rerr != nil {
+		log.Warn("recording the report run failed", "err", rerr)
+	}
+	return err
+}
+
+func writeReport(cfg *config.Config, plans []*plan, st *store.Store, dir string, now time.Time, log *slog.Logger) error {
 	in, err := buildReport(cfg, plans, st, now)
 	if err != nil {
 		return err

@@ -74,7 +74,9 @@ func runServe(ctx context.Context, e *env, args []string) error {
 		turn.Lock()
 		defer turn.Unlock()
 		start := time.Now()
-		res, err := scanOnce(ctx, e, cfg, "", "", scanOptions{}, log)
+		// Evaluated at the clock, for files too: a file feed that stopped
+		// growing goes silent as an InfluxDB feed does.
+		res, err := scanOnce(ctx, e, cfg, "", "", scanOptions{now: start.UTC()}, log)
 		mon.record(res, time.Since(start), err)
 		if err != nil {
 			log.Error("scheduled scan failed", "err", err)
@@ -101,11 +103,57 @@ func runServe(ctx context.Context, e *env, args []string) error {
 	}
 	log.Info("serving", "scan_schedule", cfg.Outputs.ScanSchedule, "report_schedule", cfg.Outputs.Report.Schedule, "zone", loc.String())
 	scan()
+	// A report whose time passed while serve was down is written now.
+	if missed, err := reportMissed(cfg, loc, time.Now()); err != nil {
+		log.Warn("checking for a missed report", "err", err)
+	} else if missed {
+		log.Info("writing the report missed while down")
+		rep()
+	}
 	c.Start()
 	<-ctx.Done()
-	<-c.Stop().Done()
+	// The run in flight sees the cancelled context: a scan stops at its
+	// next window or file block with what it committed kept.
+	select {
+	case <-c.Stop().Done():
+	case <-time.After(stopDeadline):
+		log.Warn("a run did not stop within the deadline; leaving it", "deadline", stopDeadline)
+	}
 	log.Info("stopped")
 	return nil
+}
+
+// stopDeadline is how long serve waits for the run in flight at SIGTERM.
+const stopDeadline = 30 * time.Second
+
+// reportMissed tells whether the report's schedule fired between the last
+// report written (the store's job run; never written counts as missed) and
+// now.
+func reportMissed(cfg *config.Config, loc *time.Location, now time.Time) (bool, error) {
+	st, err := openStore(cfg.Outputs.StateFile)
+	if err != nil {
+		return false, err
+	}
+	r, ok, err := st.JobRun("report")
+	st.Close()
+	if err != nil {
+		return false, err
+	}
+	if !ok || r.LastSuccessNs == 0 {
+		return true, nil
+	}
+	return scheduleFiredBetween(cfg.Outputs.Report.Schedule, loc, time.Unix(0, r.LastSuccessNs), now)
+}
+
+// scheduleFiredBetween tells whether spec (a cron spec in loc) fires in
+// (from, to].
+func scheduleFiredBetween(spec string, loc *time.Location, from, to time.Time) (bool, error) {
+	sched, err := cron.ParseStandard(spec)
+	if err != nil {
+		return false, err
+	}
+	next := sched.Next(from.In(loc))
+	return !next.IsZero() && !next.After(to), nil
 }
 
 // slogCron adapts slog to cron's logger.
