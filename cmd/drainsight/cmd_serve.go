@@ -16,7 +16,11 @@ const serveAbout = `Runs the job on its schedules until interrupted: a scan on
 outputs.scan_schedule and the outlet-health report on outputs.report.schedule
 (cron specs, time zone outputs.report.time_zone). A scan still running when
 the next is due is skipped, a panic in a run is logged and the next run goes
-ahead. Missed runs are not caught up, except that a scan runs at start-up.
+ahead. A scan runs at start-up (checkpoints make one enough to catch up after
+downtime), and a report whose time passed while serve was down is written
+then. Scans evaluate at the clock, so a file that stopped growing shows as a
+silent feed. At SIGTERM the run in flight stops at its next window or file
+block, keeping what it committed (at most 30 s), and serve exits 0.
 Keep local-time schedules out of 01:00-03:00 where clocks change. After the
 first successful scan of each UTC day a copy of the state file is written to
 backups/ beside it; the last 7 are kept (drainsight state --help).
