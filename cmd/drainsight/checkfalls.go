@@ -10,6 +10,7 @@ import (
 
 	"drainsight/ingest"
 	"drainsight/model"
+	"drainsight/scan"
 )
 
 // checkSample is how much of each file tank's history check segments to
@@ -44,7 +45,7 @@ func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
 		seg := model.NewSegmenter(&p.Tank, p.Segment)
 		cctx, cancel := context.WithCancel(ctx)
 		first := int64(0)
-		_, err = ingest.StreamSeries(cctx, src.Paths, format, opt, map[string]ingest.Conversion{p.cfg.ID: p.conv}, fileChunk, func(c *model.Series) {
+		_, err = ingest.StreamSeries(cctx, src.Paths, format, opt, map[string]ingest.Conversion{p.cfg.ID: p.conv}, scan.FileChunk, func(c *model.Series) {
 			if c.Tank != p.cfg.ID || c.Len() == 0 {
 				return
 			}

@@ -3,8 +3,6 @@ package main
 import (
 	"cmp"
 	"context"
-	"drainsight/scan"
-	"drainsight/store"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -20,6 +18,8 @@ import (
 	"drainsight/config"
 	"drainsight/detect"
 	"drainsight/model"
+	"drainsight/scan"
+	"drainsight/store"
 )
 
 const scanAbout = `One pass of the job: read every tank's level history (files, or InfluxDB

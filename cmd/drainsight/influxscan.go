@@ -282,7 +282,7 @@ func linkWindow(tanks []*influxTank, byID map[string]*influxTank, bufs map[strin
 			t.out.Err, t.failed = fmt.Errorf("the level of %s, which the outlet discharges into, is not read in this pass", into), true
 			continue
 		}
-		lv := model.ReceivingLevel{MaxGapNs: int64(receiverMaxGap),
+		lv := model.ReceivingLevel{MaxGapNs: int64(scan.ReceiverMaxGap),
 			OutletAboveM: t.p.cfg.BaseElevationM + t.p.cfg.Outlet.ElevationM - rt.p.cfg.BaseElevationM}
 		if last, ok := lastRecv[into]; ok {
 			lv.TimeNs, lv.LevelM = append(lv.TimeNs, last.tNs), append(lv.LevelM, last.levelM)

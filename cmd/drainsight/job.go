@@ -180,7 +180,16 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 			opt.progress(done, len(j.plans), o.Tank)
 		}
 	}
-	fileOuts, rep, newest := j.scanFiles(ctx, fileTanks, now)
+	limit := int64(math.MaxInt64)
+	if !now.IsZero() {
+		limit = now.UnixNano()
+	}
+	files := j.fileTanks(fileTanks)
+	rep, newestNs := scan.ReadFiles(ctx, j.st, j.log, files, limit)
+	var newest time.Time
+	if newestNs != 0 {
+		newest = time.Unix(0, newestNs).UTC()
+	}
 	res.ingest = rep
 	if rep.Problems() > 0 {
 		j.log.Warn("input problems", "count", rep.Problems(), "detail", strings.TrimSpace(rep.String()))
@@ -193,8 +202,8 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 		}
 	}
 	res.now = now
-	for _, f := range fileOuts {
-		record(f.finish(now, opt.final || !opt.now.IsZero() && f.pastSettle(now)))
+	for _, f := range files {
+		record(f.Finish(now, opt.final || !opt.now.IsZero() && f.PastSettle(now)))
 	}
 	influxOuts, wb := j.scanInflux(ctx, influxTanks, now, opt)
 	for _, o := range influxOuts {
@@ -217,208 +226,44 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	return res, err
 }
 
-// fileTank is one file tank during a pass.
-type fileTank struct {
-	p   *plan
-	run *scan.Run
-	out scan.Outcome
-}
-
-// pastSettle reports whether now is past the tank's last sample of this
-// pass by more than its settle delay (no sample: false).
-func (f *fileTank) pastSettle(now time.Time) bool {
-	if f.run == nil || f.run.Total == 0 {
-		return false
+// fileTanks describes the pass's file tanks for scan.ReadFiles: their
+// sources from the config (a setting that does not parse fails the tank),
+// and for a tank in cascade the receiving tank and the outlet's height
+// above its bottom.
+func (j *job) fileTanks(plans []*plan) []*scan.FileTank {
+	byID := map[string]*plan{}
+	for _, p := range j.plans {
+		byID[p.cfg.ID] = p
 	}
-	settle := f.run.P.Segment.Settle
-	if settle == 0 {
-		settle = model.DefaultSettle
-	}
-	return now.UnixNano()-f.run.LastNs > int64(max(settle, 0))
-}
-
-// finish commits the tank (unless it failed) and evaluates it at now; with
-// complete set the tank's history is taken as complete.
-func (f *fileTank) finish(now time.Time, complete bool) scan.Outcome {
-	o := f.out
-	if o.Err != nil || f.run == nil {
-		return o
-	}
-	f.run.Complete = complete
-	o.Fits, o.Err = f.run.Commit(true, now.UnixNano())
-	o.Collect(f.run)
-	if o.Err == nil {
-		o.Finish(f.run, now)
-	}
-	return o
-}
-
-// fileChunk is how many samples of one tank the file reader hands on at a
-// time: memory stays bounded whatever the length of the files.
-const fileChunk = 1 << 15
-
-// scanFiles reads every file source once, grouped by identical source
-// settings, streaming each tank's samples into its run. It returns the tanks
-// (not yet committed), the merged report and the time of the newest sample.
-// A tank whose files fail to read is marked failed and nothing of it is
-// committed.
-func (j *job) scanFiles(ctx context.Context, plans []*plan, now time.Time) ([]*fileTank, ingest.Report, time.Time) {
-	type group struct {
-		src         config.Source
-		inflowField string
-		conv        map[string]ingest.Conversion
-		tanks       []*fileTank
-	}
-	groups := map[string]*group{}
-	var order []string
-	var all []*fileTank
-	limit := int64(math.MaxInt64)
-	if !now.IsZero() {
-		limit = now.UnixNano()
-	}
+	out := make([]*scan.FileTank, 0, len(plans))
 	for _, p := range plans {
-		ft := &fileTank{p: p, out: scan.Outcome{Tank: p.cfg.ID}}
-		all = append(all, ft)
-		run, from, err := scan.Open(j.st, &p.Plan, j.log)
-		if err != nil {
-			ft.out.Err = err
-			continue
-		}
-		run.FromNs, run.LimitNs = from, limit
-		ft.run = run
-		s := p.cfg.Source
-		inflowField := ""
-		if p.cfg.Sensor.Inflow != nil {
-			inflowField = p.cfg.Sensor.Inflow.Field
-		}
-		key := fmt.Sprintf("%s|%q|%s|%s|%s|%s|%s", s.Format, s.Paths, s.Measurement, s.Field, s.TankTag, s.Precision, inflowField)
-		g, ok := groups[key]
-		if !ok {
-			g = &group{src: s, inflowField: inflowField, conv: map[string]ingest.Conversion{}}
-			groups[key] = g
-			order = append(order, key)
-		}
-		g.conv[p.cfg.ID] = p.conv
-		g.tanks = append(g.tanks, ft)
-	}
-	var rep ingest.Report
-	j.linkReceivers(ctx, all)
-	var newest int64
-	for _, key := range order {
-		g := groups[key]
-		byID := make(map[string]*fileTank, len(g.tanks))
-		for _, ft := range g.tanks {
-			byID[ft.out.Tank] = ft
-		}
-		format, err := ingest.ParseFormat(g.src.Format)
+		ft := &scan.FileTank{Plan: &p.Plan, Out: scan.Outcome{Tank: p.cfg.ID}}
+		out = append(out, ft)
+		src := p.cfg.Source
+		format, err := ingest.ParseFormat(src.Format)
 		if err == nil {
 			var prec ingest.Precision
-			prec, err = ingest.ParsePrecision(g.src.Precision)
-			if err == nil {
-				opt := ingest.ReadOptions{Precision: prec, Measurement: g.src.Measurement, Field: g.src.Field,
-					TankTag: g.src.TankTag, InflowField: g.inflowField}
-				var r ingest.Report
-				r, err = ingest.StreamSeries(ctx, g.src.Paths, format, opt, g.conv, fileChunk, func(c *model.Series) {
-					if n := c.Len(); n > 0 {
-						newest = max(newest, c.TimeNs[n-1])
-					}
-					if ft := byID[c.Tank]; ft != nil {
-						ft.run.Feed(c)
-					}
-				})
-				rep.Merge(r)
+			if prec, err = ingest.ParsePrecision(src.Precision); err == nil {
+				ft.Src = scan.FileSource{Paths: src.Paths, Format: format, Conv: p.conv,
+					Read: ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field, TankTag: src.TankTag}}
 			}
 		}
 		if err != nil {
-			for _, ft := range g.tanks {
-				ft.out.Err = err
-			}
-		}
-	}
-	var newestT time.Time
-	if newest != 0 {
-		newestT = time.Unix(0, newest).UTC()
-	}
-	return all, rep, newestT
-}
-
-// linkReceivers gives every tank whose outlet discharges into another tank
-// that tank's level history, read once per receiving tank from its own
-// files (level above its bottom), for the head across the outlet. A tank
-// whose receiving level cannot be read fails (nothing of it is committed).
-func (j *job) linkReceivers(ctx context.Context, tanks []*fileTank) {
-	levels := map[string]*model.ReceivingLevel{}
-	failed := map[string]error{}
-	for _, ft := range tanks {
-		if ft.run == nil || ft.p.cfg.Outlet.DischargesInto == "" {
+			ft.Out.Err = err
 			continue
 		}
-		a := ft.p.cfg
-		var rp *plan
-		for _, p := range j.plans {
-			if p.cfg.ID == a.Outlet.DischargesInto {
-				rp = p
+		if p.cfg.Sensor.Inflow != nil {
+			ft.Src.Read.InflowField = p.cfg.Sensor.Inflow.Field
+		}
+		if into := p.cfg.Outlet.DischargesInto; into != "" {
+			ft.Src.Into = into
+			if rp := byID[into]; rp != nil {
+				ft.Src.OutletAboveM = p.cfg.BaseElevationM + p.cfg.Outlet.ElevationM - rp.cfg.BaseElevationM
 			}
 		}
-		if rp == nil {
-			ft.out.Err = fmt.Errorf("outlet.discharges_into: no tank %q", a.Outlet.DischargesInto)
-			continue
-		}
-		lv, err := levels[rp.cfg.ID], failed[rp.cfg.ID]
-		if lv == nil && err == nil {
-			if lv, err = readReceiver(ctx, rp); err != nil {
-				failed[rp.cfg.ID] = err
-			} else {
-				levels[rp.cfg.ID] = lv
-			}
-		}
-		if err != nil {
-			ft.out.Err = fmt.Errorf("the level of %s, which the outlet discharges into: %w", rp.cfg.ID, err)
-			continue
-		}
-		r := *lv
-		r.OutletAboveM = a.BaseElevationM + a.Outlet.ElevationM - rp.cfg.BaseElevationM
-		ft.run.Recv = &r
 	}
+	return out
 }
-
-// readReceiver reads a receiving tank's level above its bottom from its
-// files (their problems are reported by the receiving tank's own read).
-func readReceiver(ctx context.Context, p *plan) (*model.ReceivingLevel, error) {
-	src := p.cfg.Source
-	format, err := ingest.ParseFormat(src.Format)
-	if err != nil {
-		return nil, err
-	}
-	prec, err := ingest.ParsePrecision(src.Precision)
-	if err != nil {
-		return nil, err
-	}
-	conv := p.conv
-	conv.OutletElevM, conv.InflowToSI = 0, 0
-	opt := ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field, TankTag: src.TankTag}
-	all, _, err := ingest.ReadSeries(ctx, src.Paths, format, opt, map[string]ingest.Conversion{p.cfg.ID: conv})
-	if err != nil {
-		return nil, err
-	}
-	r := &model.ReceivingLevel{MaxGapNs: int64(receiverMaxGap)}
-	if s := all[p.cfg.ID]; s != nil {
-		r.TimeNs, r.LevelM = s.TimeNs, s.HeadM
-		if n := s.Len(); n > 1 {
-			dts := make([]int64, n-1)
-			for i := range dts {
-				dts[i] = s.TimeNs[i+1] - s.TimeNs[i]
-			}
-			slices.Sort(dts)
-			r.MaxGapNs = max(r.MaxGapNs, 4*dts[len(dts)/2])
-		}
-	}
-	return r, nil
-}
-
-// receiverMaxGap is the shortest interval of the receiving tank's samples
-// not interpolated across (or four of its usual intervals, if longer).
-const receiverMaxGap = 10 * time.Minute
 
 // errTankFailures reports how many tanks failed in a pass.
 func errTankFailures(failed []scan.Outcome) error {
