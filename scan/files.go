@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"log/slog"
 	"slices"
+	"sync"
 	"time"
 
 	"drainsight/ingest"
@@ -57,6 +58,7 @@ func ReadFiles(ctx context.Context, st *store.Store, log *slog.Logger, tanks []*
 	}
 	groups := map[string]*group{}
 	var order []string
+	byID := make(map[string]*FileTank, len(tanks))
 	for _, ft := range tanks {
 		if ft.Out.Tank == "" {
 			ft.Out.Tank = ft.Plan.ID
@@ -71,6 +73,7 @@ func ReadFiles(ctx context.Context, st *store.Store, log *slog.Logger, tanks []*
 		}
 		run.FromNs, run.LimitNs = from, limitNs
 		ft.Run = run
+		byID[ft.Plan.ID] = ft
 		s := ft.Src
 		key := fmt.Sprintf("%d|%q|%s|%s|%s|%d|%s", s.Format, s.Paths, s.Read.Measurement, s.Read.Field, s.Read.TankTag, s.Read.Precision, s.Read.InflowField)
 		g, ok := groups[key]
@@ -83,31 +86,60 @@ func ReadFiles(ctx context.Context, st *store.Store, log *slog.Logger, tanks []*
 		g.tanks = append(g.tanks, ft)
 	}
 	linkReceivers(ctx, tanks)
+	// The reader parses on this goroutine while FileWorkers goroutines
+	// segment and fit: each tank is fed by one worker, its chunks in order,
+	// so every run sees exactly the sequence it would see alone.
+	feeds := make([]chan *model.Series, FileWorkers)
+	var wg sync.WaitGroup
+	for i := range feeds {
+		feeds[i] = make(chan *model.Series, 4)
+		wg.Add(1)
+		go func(ch <-chan *model.Series) {
+			defer wg.Done()
+			for c := range ch {
+				byID[c.Tank].Run.Feed(c)
+			}
+		}(feeds[i])
+	}
+	worker := map[string]int{}
 	var rep ingest.Report
 	var newest int64
+	var failed []error
 	for _, key := range order {
 		g := groups[key]
-		byID := make(map[string]*FileTank, len(g.tanks))
-		for _, ft := range g.tanks {
-			byID[ft.Plan.ID] = ft
-		}
 		r, err := ingest.StreamSeries(ctx, g.src.Paths, g.src.Format, g.src.Read, g.conv, FileChunk, func(c *model.Series) {
 			if n := c.Len(); n > 0 {
 				newest = max(newest, c.TimeNs[n-1])
 			}
 			if ft := byID[c.Tank]; ft != nil && ft.Run != nil {
-				ft.Run.Feed(c)
+				w, ok := worker[c.Tank]
+				if !ok {
+					w = len(worker) % len(feeds)
+					worker[c.Tank] = w
+				}
+				feeds[w] <- c
 			}
 		})
 		rep.Merge(r)
-		if err != nil {
-			for _, ft := range g.tanks {
+		failed = append(failed, err)
+	}
+	for _, ch := range feeds {
+		close(ch)
+	}
+	wg.Wait()
+	for i, key := range order {
+		if err := failed[i]; err != nil {
+			for _, ft := range groups[key].tanks {
 				ft.Out.Err = err
 			}
 		}
 	}
 	return rep, newest
 }
+
+// FileWorkers is how many goroutines segment and fit the tanks of a file
+// pass beside the one that reads and parses.
+const FileWorkers = 2
 
 // PastSettle reports whether now is past the tank's last sample of this
 // pass by more than its settle delay (no sample: false).
