@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -181,14 +182,31 @@ func readFile(ctx context.Context, path string, format Format, opt ReadOptions, 
 	problem := func(kind ProblemKind, text string) {
 		rep.add(Problem{File: path, Line: lr.n, Kind: kind, Text: text})
 	}
+	// Consecutive lines usually name the same tank: its name, interned,
+	// and whether it is read are kept from the line before.
+	var lastB []byte
+	var lastTank string
+	haveLast, lastKnown := false, false
 	accept := func(tankB []byte, tNs int64, v float64) {
-		// Unknown names are counted, never interned: memory stays flat
-		// whatever the input holds.
-		if opt.Tanks != nil && !opt.Tanks[string(tankB)] {
-			problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tankB))
-			return
+		var tank string
+		if haveLast && bytes.Equal(tankB, lastB) {
+			if !lastKnown {
+				problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tankB))
+				return
+			}
+			tank = lastTank
+		} else {
+			// Unknown names are counted, never interned: memory stays
+			// flat whatever the input holds.
+			known := opt.Tanks == nil || opt.Tanks[string(tankB)]
+			lastB, haveLast, lastKnown = append(lastB[:0], tankB...), true, known
+			if !known {
+				problem(UnknownTank, fmt.Sprintf("tank %q is not configured", tankB))
+				return
+			}
+			tank = ord.intern(tankB)
+			lastTank = tank
 		}
-		tank := ord.intern(tankB)
 		if opt.Range != nil {
 			if text := opt.Range(tank, v); text != "" {
 				problem(OutOfRange, fmt.Sprintf("tank %q: %s", tank, text))
@@ -406,9 +424,20 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 		}
 	}
 	opt.Tanks = known
+	// The range check converts the reading; the sink that follows it for
+	// the same line takes that head instead of converting again. Both keep
+	// the tank of the line before (names are interned: == is a pointer
+	// compare when they match).
+	var rTank string
+	var rConv Conversion
+	var lastH, lastV float64
+	lastOK := false
 	opt.Range = func(tank string, v float64) string {
-		c := conv[tank]
-		_, text := c.Head(v)
+		if tank != rTank {
+			rTank, rConv = tank, conv[tank]
+		}
+		h, text := rConv.Head(v)
+		lastH, lastV, lastOK = h, v, text == ""
 		return text
 	}
 	flows := map[string]*meterReadings{}
@@ -439,12 +468,17 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 		}
 		emit(s)
 	}
+	var sTank string
+	var sBuf *model.Series
 	sink := func(tank string, tNs int64, v float64) {
-		s := bufs[tank]
-		if s == nil {
-			s = &model.Series{Tank: tank}
-			bufs[tank] = s
-			order = append(order, tank)
+		s := sBuf
+		if tank != sTank || s == nil {
+			s = bufs[tank]
+			if s == nil {
+				s = &model.Series{Tank: tank}
+				bufs[tank] = s
+				order = append(order, tank)
+			}
 		}
 		// Emit before appending, so that the inflow reading of the last
 		// line in the chunk has been delivered.
@@ -453,8 +487,12 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 			s = &model.Series{Tank: tank, TimeNs: make([]int64, 0, chunk), HeadM: make([]float64, 0, chunk)}
 			bufs[tank] = s
 		}
-		c := conv[tank]
-		h, _ := c.Head(v) // opt.Range let only good readings through
+		sTank, sBuf = tank, s
+		h := lastH
+		if !lastOK || tank != rTank || math.Float64bits(v) != math.Float64bits(lastV) {
+			c := conv[tank]
+			h, _ = c.Head(v)
+		}
 		s.Append(tNs, h)
 	}
 	ord := newOrder()
