@@ -7,11 +7,13 @@ import (
 	"maps"
 	"os"
 	"slices"
+	"strings"
 	"time"
 
 	"drainsight/alert"
 	"drainsight/config"
 	"drainsight/scan"
+	"drainsight/store"
 )
 
 // notifiers returns the configured notifiers by outbox sink name. Each is
@@ -75,6 +77,22 @@ func (j *job) sender() *scan.Sender {
 func (j *job) deliverNotifications(ctx context.Context) scan.Delivery {
 	var total scan.Delivery
 	snd := j.sender()
+	// Transitions queued for a notifier the config no longer has are
+	// dropped with a log line: nothing would ever deliver them.
+	if all, err := j.st.Pending(""); err == nil {
+		var orphans []store.OutboxItem
+		for _, it := range all {
+			if strings.HasPrefix(it.Sink, "notify:") && j.notifiers[it.Sink] == nil {
+				orphans = append(orphans, it)
+			}
+		}
+		if len(orphans) > 0 {
+			j.log.Warn("dropping transitions queued for a notifier no longer configured", "count", len(orphans), "first", orphans[0].ID)
+			if err := j.st.Delivered(orphans...); err != nil {
+				j.log.Error("notification outbox", "err", err)
+			}
+		}
+	}
 	for _, name := range slices.Sorted(maps.Keys(j.notifiers)) {
 		d, err := snd.Deliver(ctx, name, scan.NotifyTo(j.notifiers[name]), time.Now())
 		if err != nil {

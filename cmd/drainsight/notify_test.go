@@ -10,6 +10,10 @@ import (
 	"strings"
 	"sync"
 	"testing"
+	"time"
+
+	"drainsight/scan"
+	"drainsight/store"
 )
 
 // TestNotificationsNeverLost: a webhook receiver that answers 404 loses
@@ -92,7 +96,6 @@ func TestNotificationsNeverLost(t *testing.T) {
 		t.Fatalf("third scan: %v", err)
 	}
 	mu.Lock()
-	defer mu.Unlock()
 	if len(got) != len(queued) {
 		t.Errorf("receiver got %d distinct transitions, %d were queued", len(got), len(queued))
 	}
@@ -103,4 +106,27 @@ func TestNotificationsNeverLost(t *testing.T) {
 		}
 	}
 	t.Logf("%d transitions: %d requests refused, then each delivered once", len(queued), refused)
+	mu.Unlock()
+
+	// a transition queued for a notifier the config no longer names is
+	// dropped by the next scan, not kept pending for ever
+	st, err = openStore(state)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := st.Enqueue(store.OutboxItem{ID: "notify:pager|x", Sink: "notify:pager", Kind: scan.OutboxAlert, QueuedNs: time.Now().UnixNano()}); err != nil {
+		t.Fatal(err)
+	}
+	st.Close()
+	if _, err := scanIt(); err != nil {
+		t.Fatalf("scan with an orphan item: %v", err)
+	}
+	st, err = openStore(state)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	if left, _ := st.Pending("notify:pager"); len(left) != 0 {
+		t.Errorf("%d items of an unconfigured notifier left", len(left))
+	}
 }
