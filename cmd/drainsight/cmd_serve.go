@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"log/slog"
 	"sync"
@@ -84,7 +85,10 @@ func runServe(ctx context.Context, e *env, args []string) error {
 		mon.record(res, time.Since(start), err)
 		if err != nil {
 			log.Error("scheduled scan failed", "err", err)
-			return
+			var pending errNotificationsPending
+			if !errors.As(err, &pending) {
+				return // the scan's own work failed: no copy of a half-done state
+			}
 		}
 		if name, err := dailyBackup(cfg.Outputs.StateFile, time.Now()); err != nil {
 			log.Error("daily backup of the state file failed", "err", err)
