@@ -53,6 +53,7 @@ Commands:
   check         validate a config file and say what would be read
   maintenance   add, list or remove maintenance records (they reset baselines)
   state         check the state file for damage, or back it up
+  plan-test     plan a commissioning drain test that pins K to a precision
   study         run the accuracy or detection study and print its table
   help          show this text, or "help <command>"
 
@@ -82,6 +83,7 @@ func commands() []command {
 		{"check", "validate a config file", runCheck},
 		{"maintenance", "add, list or remove maintenance records", runMaintenance},
 		{"state", "check the state file for damage, or back it up", runState},
+		{"plan-test", "plan a commissioning drain test that pins K to a precision", runPlanTest},
 		{"study", "run the accuracy or detection study", runStudy},
 	}
 }

@@ -1,0 +1,145 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+	"time"
+
+	"drainsight/config"
+	"drainsight/model"
+	"drainsight/scan"
+	"drainsight/store"
+)
+
+const planTestAbout = `Plan a commissioning drain test for one tank: how high to fill it, how far
+to let it run and how often to sample so that the test pins the outlet
+constant K to the precision asked. The precision is the Cramér-Rao bound of
+the fit's own model (the information matrix of the drain curve; the fit
+reaches it on white noise), widened by sqrt((1+rho)/(1-rho)) for reading
+noise with lag-1 correlation rho, with and without a fitted datum. K is the
+tank's baseline when the state file has one, else detection.design_k, else
+the ideal constant of the outlet bore with its design Cd. The shortest test
+that reaches the precision with the datum fitted is recommended; when none
+does, the finer sampling or quieter transmitter that would reach it is said.
+
+Filling and draining a tank for a test is work on the plant: follow your
+site's procedures, local codes and licensed practice.`
+
+func runPlanTest(ctx context.Context, e *env, args []string) error {
+	fs := newFlags(e, "plan-test", "plan-test --config FILE --tank ID [flags]", planTestAbout)
+	cfgPath := fs.String("config", "", "configuration file (required)")
+	statePath := fs.String("state", "", "state file for the baseline K (default: outputs.state_file of the config)")
+	tankID := fs.String("tank", "", "tank id (required)")
+	precision := fs.String("precision", "0.5%", "wanted relative standard error of K")
+	noise := fs.String("noise", "2 mm", "reading noise of the transmitter (a length)")
+	sampling := fs.String("sampling", "10 s", "sampling interval")
+	rho := fs.Float64("rho", 0, "lag-1 correlation of the reading noise (0: white; the scan's fits show it)")
+	if err := parseFlags(e, fs, args); err != nil {
+		return err
+	}
+	if *cfgPath == "" || *tankID == "" {
+		return &usageError{"plan-test: --config and --tank are required"}
+	}
+	target, err := strconv.ParseFloat(strings.TrimSuffix(strings.TrimSpace(*precision), "%"), 64)
+	if err != nil || !(target > 0) {
+		return &usageError{fmt.Sprintf("plan-test: --precision %q: want a percentage such as 0.5%%", *precision)}
+	}
+	target /= 100
+	noiseM, err := config.ParseLength(*noise)
+	if err != nil {
+		return &usageError{"plan-test: --noise: " + err.Error()}
+	}
+	samp, err := config.ParseDuration(*sampling)
+	if err != nil {
+		return &usageError{"plan-test: --sampling: " + err.Error()}
+	}
+	cfg, err := config.Load(*cfgPath)
+	if err != nil {
+		return err
+	}
+	var ct *config.Tank
+	for i := range cfg.Tanks {
+		if cfg.Tanks[i].ID == *tankID {
+			ct = &cfg.Tanks[i]
+		}
+	}
+	if ct == nil {
+		return &usageError{fmt.Sprintf("plan-test: no tank %q in %s", *tankID, *cfgPath)}
+	}
+	p, err := buildPlan(*ct)
+	if err != nil {
+		return err
+	}
+	k, from := baselineK(cfg, *statePath, ct.ID)
+	switch {
+	case k > 0:
+	case ct.Detection.DesignKM25s > 0:
+		k, from = ct.Detection.DesignKM25s, "detection.design_k"
+	case ct.Outlet.DiameterM > 0 && ct.Outlet.DesignCd > 0:
+		k = ct.Outlet.DesignCd * math.Pi * ct.Outlet.DiameterM * ct.Outlet.DiameterM / 4 * math.Sqrt(2*model.StandardGravity)
+		from = fmt.Sprintf("the %.0f mm bore with Cd %.2f", 1000*ct.Outlet.DiameterM, ct.Outlet.DesignCd)
+	default:
+		return fmt.Errorf("plan-test: tank %s: no K to plan with: no baseline yet, and neither detection.design_k nor outlet diameter and design_cd", ct.ID)
+	}
+	maxHead := p.Tank.Shape.HeightM() - p.Tank.OutletElevM
+	rows, best, err := model.PlanDrainTest(&p.Tank, model.PlanOptions{KM25s: k, NoiseM: noiseM, SampleS: samp.Seconds(), Rho: *rho, Target: target, MaxHeadM: maxHead})
+	if err != nil {
+		return err
+	}
+	w := e.stdout
+	fmt.Fprintf(w, "Drain test for %s: K %.4g m^2.5/s (from %s), noise %.1f mm, sampling %v, rho %.2f; wanted %.2f %%.\n\n",
+		ct.ID, k, from, 1000*noiseM, samp, *rho, 100*target)
+	fmt.Fprintln(w, "| start head m | end head m | duration | samples | rel. SE of K, datum known | datum fitted |")
+	fmt.Fprintln(w, "|---|---|---|---|---|---|")
+	for _, r := range rows {
+		fmt.Fprintf(w, "| %.2f | %.2f | %v | %d | %.3f %% | %.3f %% |\n", r.StartHeadM, r.EndHeadM,
+			time.Duration(r.DurationS*float64(time.Second)).Round(time.Second), r.Samples, 100*r.RelSE, 100*r.RelSEDatum)
+	}
+	fmt.Fprintln(w)
+	if best != nil {
+		lo, hi := k*(1-1.96*best.RelSEDatum), k*(1+1.96*best.RelSEDatum)
+		fmt.Fprintf(w, "Recommended: fill to %.2f m above the outlet and let it run to %.2f m (%v, %d samples): K to %.3f %% (95 %% interval about %.4g to %.4g m^2.5/s).\n",
+			best.StartHeadM, best.EndHeadM, time.Duration(best.DurationS*float64(time.Second)).Round(time.Second), best.Samples, 100*best.RelSEDatum, lo, hi)
+	} else {
+		top := rows[len(rows)-1] // from full to empty: the most precise
+		for _, r := range rows {
+			if r.RelSEDatum < top.RelSEDatum {
+				top = r
+			}
+		}
+		ratio := top.RelSEDatum / target
+		fmt.Fprintf(w, "No test in this tank reaches %.2f %%: the best, from %.2f m to empty, gives %.3f %%. It would take sampling every %v (the SE falls as the square root of the interval) or a transmitter with %.2f mm of noise.\n",
+			100*target, top.StartHeadM, 100*top.RelSEDatum, time.Duration(samp.Seconds()/(ratio*ratio)*float64(time.Second)).Round(10*time.Millisecond), 1000*noiseM/ratio)
+	}
+	fmt.Fprintln(w, "\nFilling and draining for a test is work on the plant: follow your site's procedures, local codes and licensed practice.")
+	return nil
+}
+
+// baselineK returns the tank's baseline K from the state file, if it has
+// one (0 otherwise), and where it came from.
+func baselineK(cfg *config.Config, statePath, tank string) (float64, string) {
+	if statePath == "" {
+		statePath = cfg.Outputs.StateFile
+	}
+	if _, err := os.Stat(statePath); err != nil {
+		return 0, ""
+	}
+	st, err := store.Open(statePath, time.Second)
+	if err != nil {
+		return 0, ""
+	}
+	defer st.Close()
+	blob, err := st.DetectorState(tank)
+	if err != nil || blob == nil {
+		return 0, ""
+	}
+	var s scan.SavedState
+	if err := scan.DecodeState(blob, &s); err != nil || s.Detector == nil || !s.Detector.Ref.Set {
+		return 0, ""
+	}
+	return s.Detector.Ref.KM25s, "the tank's baseline"
+}
