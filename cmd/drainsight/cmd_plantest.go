@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -20,7 +21,8 @@ to let it run and how often to sample so that the test pins the outlet
 constant K to the precision asked. The precision is the Cramér-Rao bound of
 the fit's own model (the information matrix of the drain curve; the fit
 reaches it on white noise), widened by sqrt((1+rho)/(1-rho)) for reading
-noise with lag-1 correlation rho, with and without a fitted datum. K is the
+noise with lag-1 correlation rho (both from the tank's recent fits unless
+given), with and without a fitted datum. K is the
 tank's baseline when the state file has one, else detection.design_k, else
 the ideal constant of the outlet bore with its design Cd. The shortest test
 that reaches the precision with the datum fitted is recommended; when none
@@ -35,9 +37,9 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 	statePath := fs.String("state", "", "state file for the baseline K (default: outputs.state_file of the config)")
 	tankID := fs.String("tank", "", "tank id (required)")
 	precision := fs.String("precision", "0.5%", "wanted relative standard error of K")
-	noise := fs.String("noise", "2 mm", "reading noise of the transmitter (a length)")
+	noise := fs.String("noise", "", "reading noise of the transmitter, a length (default: the median of the tank's recent fits, else 2 mm)")
 	sampling := fs.String("sampling", "10 s", "sampling interval")
-	rho := fs.Float64("rho", 0, "lag-1 correlation of the reading noise (0: white; the scan's fits show it)")
+	rho := fs.Float64("rho", -1, "lag-1 correlation of the reading noise at the sampling interval (default: from the tank's recent fits, else 0)")
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
 	}
@@ -49,13 +51,18 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 		return &usageError{fmt.Sprintf("plan-test: --precision %q: want a percentage such as 0.5%%", *precision)}
 	}
 	target /= 100
-	noiseM, err := config.ParseLength(*noise)
-	if err != nil {
-		return &usageError{"plan-test: --noise: " + err.Error()}
+	noiseM := 0.0
+	if *noise != "" {
+		if noiseM, err = config.ParseLength(*noise); err != nil {
+			return &usageError{"plan-test: --noise: " + err.Error()}
+		}
 	}
 	samp, err := config.ParseDuration(*sampling)
-	if err != nil {
-		return &usageError{"plan-test: --sampling: " + err.Error()}
+	if err != nil || samp <= 0 {
+		return &usageError{fmt.Sprintf("plan-test: --sampling %q: want a positive duration", *sampling)}
+	}
+	if *rho >= 1 || (*rho < 0 && *rho != -1) {
+		return &usageError{fmt.Sprintf("plan-test: --rho %g: want 0 <= rho < 1", *rho)}
 	}
 	cfg, err := config.Load(*cfgPath)
 	if err != nil {
@@ -85,14 +92,30 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 	default:
 		return fmt.Errorf("plan-test: tank %s: no K to plan with: no baseline yet, and neither detection.design_k nor outlet diameter and design_cd", ct.ID)
 	}
+	// The transmitter as the tank's recent drains show it, where no flag
+	// says otherwise.
+	fitNoise, fitRho, nFits := recentNoise(cfg, *statePath, ct.ID, samp.Seconds())
+	noiseFrom, rhoFrom := "--noise", "--rho"
+	if noiseM == 0 {
+		noiseM, noiseFrom = 0.002, "the default"
+		if nFits > 0 {
+			noiseM, noiseFrom = fitNoise, fmt.Sprintf("the median of the last %d fits", nFits)
+		}
+	}
+	if *rho < 0 {
+		*rho, rhoFrom = 0, "white"
+		if nFits > 0 {
+			*rho, rhoFrom = fitRho, fmt.Sprintf("the last %d fits", nFits)
+		}
+	}
 	maxHead := p.Tank.Shape.HeightM() - p.Tank.OutletElevM
 	rows, best, err := model.PlanDrainTest(&p.Tank, model.PlanOptions{KM25s: k, NoiseM: noiseM, SampleS: samp.Seconds(), Rho: *rho, Target: target, MaxHeadM: maxHead})
 	if err != nil {
 		return err
 	}
 	w := e.stdout
-	fmt.Fprintf(w, "Drain test for %s: K %.4g m^2.5/s (from %s), noise %.1f mm, sampling %v, rho %.2f; wanted %.2f %%.\n\n",
-		ct.ID, k, from, 1000*noiseM, samp, *rho, 100*target)
+	fmt.Fprintf(w, "Drain test for %s: K %.4g m^2.5/s (from %s), noise %.1f mm (%s), sampling %v, rho %.2f (%s); wanted %.2f %%.\n\n",
+		ct.ID, k, from, 1000*noiseM, noiseFrom, samp, *rho, rhoFrom, 100*target)
 	fmt.Fprintln(w, "| start head m | end head m | duration | samples | rel. SE of K, datum known | datum fitted |")
 	fmt.Fprintln(w, "|---|---|---|---|---|---|")
 	for _, r := range rows {
@@ -142,4 +165,45 @@ func baselineK(cfg *config.Config, statePath, tank string) (float64, string) {
 		return 0, ""
 	}
 	return s.Detector.Ref.KM25s, "the tank's baseline"
+}
+
+// recentNoise is the median reading noise and lag-1 residual correlation of
+// the tank's last 10 fits, the correlation moved to the plan's sampling
+// interval (ρ^(Δplan/Δfit), an AR(1) in continuous time); n is 0 when the
+// state file has none.
+func recentNoise(cfg *config.Config, statePath, tank string, sampleS float64) (noiseM, rho float64, n int) {
+	if statePath == "" {
+		statePath = cfg.Outputs.StateFile
+	}
+	if _, err := os.Stat(statePath); err != nil {
+		return 0, 0, 0
+	}
+	st, err := store.Open(statePath, time.Second)
+	if err != nil {
+		return 0, 0, 0
+	}
+	defer st.Close()
+	fits, err := st.Fits(tank, 0, math.MaxInt64)
+	if err != nil || len(fits) == 0 {
+		return 0, 0, 0
+	}
+	fits = fits[max(0, len(fits)-10):]
+	var sig, rh []float64
+	for _, f := range fits {
+		if f.SigmaM > 0 {
+			sig = append(sig, f.SigmaM)
+		}
+		r := 0.0
+		if f.ResidualRho > 0 && f.N > 1 && f.EndNs > f.StartNs {
+			dt := float64(f.EndNs-f.StartNs) / 1e9 / float64(f.N-1)
+			r = math.Pow(math.Min(f.ResidualRho, 0.999), sampleS/dt)
+		}
+		rh = append(rh, r)
+	}
+	if len(sig) == 0 {
+		return 0, 0, 0
+	}
+	slices.Sort(sig)
+	slices.Sort(rh)
+	return sig[len(sig)/2], math.Min(rh[len(rh)/2], 0.99), len(fits)
 }
