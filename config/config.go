@@ -109,6 +109,12 @@ type Outlet struct {
 	// estimated per drain.
 	ElevationKnown bool
 	DesignCd       float64 // design discharge coefficient; 0 when not given
+	// Kind is what the outlet is, for judging a commissioning test:
+	// "orifice" (sharp-edged), "short_tube", "valve", or "" (not said).
+	Kind string
+	// KvM3h is a valve's flow coefficient from its data sheet (m^3/h of
+	// water at 1 bar across it); 0 when not given.
+	KvM3h float64
 	// DischargesInto is the id of the configured tank (or basin) that this
 	// outlet discharges into; "" for a free discharge. Its level, with the
 	// two tanks' BaseElevationM, gives the level on the far side of the

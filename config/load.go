@@ -496,6 +496,8 @@ func (d *decoder) outlet(n *yaml.Node, path string, parent *fields, heightM floa
 	o := Outlet{
 		DiameterM: quantity(f, "diameter", 0, ParseLength, positive),
 		DesignCd:  quantity(f, "design_cd", 0, parseNumber, between(0, 1, true, false)),
+		Kind:      f.oneOf("kind", "", "orifice", "short_tube", "valve"),
+		KvM3h:     quantity(f, "kv", 0, parseNumber, positive),
 	}
 	if into, en, ok := f.scalar("discharges_into"); ok {
 		o.DischargesInto, d.linkNode = into, en

@@ -54,6 +54,7 @@ Commands:
   maintenance   add, list or remove maintenance records (they reset baselines)
   state         check the state file for damage, or back it up
   plan-test     plan a commissioning drain test that pins K to a precision
+  commission    judge a commissioning drain test against the outlet
   study         run the accuracy or detection study and print its table
   help          show this text, or "help <command>"
 
@@ -84,6 +85,7 @@ func commands() []command {
 		{"maintenance", "add, list or remove maintenance records", runMaintenance},
 		{"state", "check the state file for damage, or back it up", runState},
 		{"plan-test", "plan a commissioning drain test that pins K to a precision", runPlanTest},
+		{"commission", "judge a commissioning drain test against the outlet", runCommission},
 		{"study", "run the accuracy or detection study", runStudy},
 	}
 }
