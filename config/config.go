@@ -49,21 +49,33 @@ type Influx struct {
 // Token returns the token from TokenEnv or TokenFile (surrounding white space
 // removed), or "" when neither is set. The token is a secret: never log it.
 func (i *Influx) Token() (string, error) {
+	return readSecret(i.TokenEnv, "influx token", i.TokenFile, "influx token file", true)
+}
+
+// readSecret reads a secret from the environment variable env or the file
+// file (surrounding white space removed); "" when neither is named. envWhat
+// and fileWhat name the setting in errors, which never hold the secret or
+// the file's content. An empty variable is an error unless allowEmpty.
+func readSecret(env, envWhat, file, fileWhat string, allowEmpty bool) (string, error) {
 	switch {
-	case i.TokenEnv != "":
-		t, ok := os.LookupEnv(i.TokenEnv)
-		if !ok {
-			return "", fmt.Errorf("config: influx token: environment variable %s is not set", i.TokenEnv)
+	case env != "":
+		t, ok := os.LookupEnv(env)
+		t = strings.TrimSpace(t)
+		switch {
+		case !ok && allowEmpty:
+			return "", fmt.Errorf("config: %s: environment variable %s is not set", envWhat, env)
+		case !ok || t == "" && !allowEmpty:
+			return "", fmt.Errorf("config: %s: environment variable %s is empty or not set", envWhat, env)
 		}
-		return strings.TrimSpace(t), nil
-	case i.TokenFile != "":
-		b, err := os.ReadFile(i.TokenFile)
+		return t, nil
+	case file != "":
+		b, err := os.ReadFile(file)
 		if err != nil {
 			var pe *os.PathError
 			if errors.As(err, &pe) {
 				err = pe.Err // the error text never contains file content
 			}
-			return "", fmt.Errorf("config: influx token file %s: %w", i.TokenFile, err)
+			return "", fmt.Errorf("config: %s %s: %w", fileWhat, file, err)
 		}
 		return strings.TrimSpace(string(b)), nil
 	}
@@ -255,25 +267,7 @@ type HTTPSettings struct {
 
 // Token returns the bearer token ("" when none is configured).
 func (h *HTTPSettings) Token() (string, error) {
-	switch {
-	case h.TokenEnv != "":
-		t, ok := os.LookupEnv(h.TokenEnv)
-		if !ok || strings.TrimSpace(t) == "" {
-			return "", fmt.Errorf("config: outputs.http.token_env: environment variable %s is empty or not set", h.TokenEnv)
-		}
-		return strings.TrimSpace(t), nil
-	case h.TokenFile != "":
-		b, err := os.ReadFile(h.TokenFile)
-		if err != nil {
-			var pe *os.PathError
-			if errors.As(err, &pe) {
-				err = pe.Err
-			}
-			return "", fmt.Errorf("config: outputs.http.token_file %s: %w", h.TokenFile, err)
-		}
-		return strings.TrimSpace(string(b)), nil
-	}
-	return "", nil
+	return readSecret(h.TokenEnv, "outputs.http.token_env", h.TokenFile, "outputs.http.token_file", false)
 }
 
 // DeliverySettings govern the outbox in the state file: notifications and
@@ -308,25 +302,7 @@ type AlertSettings struct {
 // Secret returns the webhook signing secret ("" when none is configured).
 // It is a secret: never log it.
 func (a *AlertSettings) Secret() (string, error) {
-	switch {
-	case a.SecretEnv != "":
-		t, ok := os.LookupEnv(a.SecretEnv)
-		if !ok || strings.TrimSpace(t) == "" {
-			return "", fmt.Errorf("config: outputs.alert.webhook_secret_env: environment variable %s is empty or not set", a.SecretEnv)
-		}
-		return strings.TrimSpace(t), nil
-	case a.SecretFile != "":
-		b, err := os.ReadFile(a.SecretFile)
-		if err != nil {
-			var pe *os.PathError
-			if errors.As(err, &pe) {
-				err = pe.Err
-			}
-			return "", fmt.Errorf("config: outputs.alert.webhook_secret_file %s: %w", a.SecretFile, err)
-		}
-		return strings.TrimSpace(string(b)), nil
-	}
-	return "", nil
+	return readSecret(a.SecretEnv, "outputs.alert.webhook_secret_env", a.SecretFile, "outputs.alert.webhook_secret_file", false)
 }
 
 // Site returns the site with the given id, or nil.

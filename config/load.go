@@ -888,14 +888,7 @@ func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 			d.add(path+".alert.webhook_url", un, "give webhook_url or webhook_url_env, not both")
 		}
 	}
-	o.Alert.SecretEnv = af.str("webhook_secret_env", "")
-	o.Alert.SecretFile = d.resolve(af.str("webhook_secret_file", ""))
-	if o.Alert.SecretEnv != "" && o.Alert.SecretFile != "" {
-		d.add(path+".alert.webhook_secret_env", af.get("webhook_secret_env"), "give webhook_secret_env or webhook_secret_file, not both")
-	}
-	if _, _, ok := af.scalar("webhook_secret"); ok {
-		d.add(path+".alert.webhook_secret", af.get("webhook_secret"), "secrets are not allowed in the config file; name an environment variable with webhook_secret_env or a file with webhook_secret_file")
-	}
+	o.Alert.SecretEnv, o.Alert.SecretFile = d.secretKeys(af, path+".alert", "webhook_secret")
 	if cn := af.get("command"); cn != nil && cn.Kind == yaml.ScalarNode {
 		d.add(path+".alert.command", cn, "want a list: the program and its arguments (no shell)")
 	} else {
@@ -919,17 +912,23 @@ func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 			d.add(path+".http.address", hf.get("address"), "want host:port (127.0.0.1:9470 keeps it on this machine), or off: %v", err)
 		}
 	}
-	o.HTTP.TokenEnv = hf.str("token_env", "")
-	o.HTTP.TokenFile = d.resolve(hf.str("token_file", ""))
-	if o.HTTP.TokenEnv != "" && o.HTTP.TokenFile != "" {
-		d.add(path+".http.token_env", hf.get("token_env"), "give token_env or token_file, not both")
-	}
-	if _, _, ok := hf.scalar("token"); ok {
-		d.add(path+".http.token", hf.get("token"), "secrets are not allowed in the config file; name an environment variable with token_env or a file with token_file")
-	}
+	o.HTTP.TokenEnv, o.HTTP.TokenFile = d.secretKeys(hf, path+".http", "token")
 	hf.done()
 	f.done()
 	return o
+}
+
+// secretKeys reads the keys that name where a secret comes from, name_env
+// and name_file (not both), and refuses the secret itself under name.
+func (d *decoder) secretKeys(f *fields, path, name string) (env, file string) {
+	env, file = f.str(name+"_env", ""), d.resolve(f.str(name+"_file", ""))
+	if env != "" && file != "" {
+		d.add(join(path, name+"_env"), f.get(name+"_env"), "give %s_env or %s_file, not both", name, name)
+	}
+	if _, _, ok := f.scalar(name); ok {
+		d.add(join(path, name), f.get(name), "secrets are not allowed in the config file; name an environment variable with %s_env or a file with %s_file", name, name)
+	}
+	return env, file
 }
 
 // checkCron validates a schedule with the standard parser (5 fields or a
