@@ -305,6 +305,16 @@ func (a *AlertSettings) Secret() (string, error) {
 	return readSecret(a.SecretEnv, "outputs.alert.webhook_secret_env", a.SecretFile, "outputs.alert.webhook_secret_file", false)
 }
 
+// Tank returns the tank with the given id, or nil.
+func (c *Config) Tank(id string) *Tank {
+	for i := range c.Tanks {
+		if c.Tanks[i].ID == id {
+			return &c.Tanks[i]
+		}
+	}
+	return nil
+}
+
 // Site returns the site with the given id, or nil.
 func (c *Config) Site(id string) *Site {
 	for i := range c.Sites {

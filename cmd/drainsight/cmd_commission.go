@@ -64,12 +64,7 @@ func runCommission(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	var ct *config.Tank
-	for i := range cfg.Tanks {
-		if cfg.Tanks[i].ID == *tankID {
-			ct = &cfg.Tanks[i]
-		}
-	}
+	ct := cfg.Tank(*tankID)
 	if ct == nil {
 		return &usageError{fmt.Sprintf("commission: no tank %q in %s", *tankID, *cfgPath)}
 	}

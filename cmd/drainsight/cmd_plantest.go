@@ -68,12 +68,7 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	var ct *config.Tank
-	for i := range cfg.Tanks {
-		if cfg.Tanks[i].ID == *tankID {
-			ct = &cfg.Tanks[i]
-		}
-	}
+	ct := cfg.Tank(*tankID)
 	if ct == nil {
 		return &usageError{fmt.Sprintf("plan-test: no tank %q in %s", *tankID, *cfgPath)}
 	}
@@ -81,7 +76,16 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
-	k, from := baselineK(cfg, *statePath, ct.ID)
+	// The tank's own history, when the state file has one: its baseline K,
+	// and the transmitter as its recent drains show it.
+	var k, fitNoise, fitRho float64
+	var from string
+	var nFits int
+	if st := openIfExists(cfg, *statePath); st != nil {
+		k, from = baselineK(st, ct.ID)
+		fitNoise, fitRho, nFits = recentNoise(st, ct.ID, samp.Seconds())
+		st.Close()
+	}
 	switch {
 	case k > 0:
 	case ct.Detection.DesignKM25s > 0:
@@ -92,9 +96,8 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 	default:
 		return fmt.Errorf("plan-test: tank %s: no K to plan with: no baseline yet, and neither detection.design_k nor outlet diameter and design_cd", ct.ID)
 	}
-	// The transmitter as the tank's recent drains show it, where no flag
-	// says otherwise.
-	fitNoise, fitRho, nFits := recentNoise(cfg, *statePath, ct.ID, samp.Seconds())
+	// Where no flag says otherwise, the transmitter as the recent drains
+	// show it.
 	noiseFrom, rhoFrom := "--noise", "--rho"
 	if noiseM == 0 {
 		noiseM, noiseFrom = 0.002, "the default"
@@ -142,20 +145,25 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 	return nil
 }
 
-// baselineK returns the tank's baseline K from the state file, if it has
-// one (0 otherwise), and where it came from.
-func baselineK(cfg *config.Config, statePath, tank string) (float64, string) {
+// openIfExists opens the state file if there is one (nil otherwise, or
+// when it cannot be opened: the plan then goes without the history).
+func openIfExists(cfg *config.Config, statePath string) *store.Store {
 	if statePath == "" {
 		statePath = cfg.Outputs.StateFile
 	}
 	if _, err := os.Stat(statePath); err != nil {
-		return 0, ""
+		return nil
 	}
 	st, err := store.Open(statePath, time.Second)
 	if err != nil {
-		return 0, ""
+		return nil
 	}
-	defer st.Close()
+	return st
+}
+
+// baselineK returns the tank's baseline K from the state file, if it has
+// one (0 otherwise), and where it came from.
+func baselineK(st *store.Store, tank string) (float64, string) {
 	blob, err := st.DetectorState(tank)
 	if err != nil || blob == nil {
 		return 0, ""
@@ -169,20 +177,9 @@ func baselineK(cfg *config.Config, statePath, tank string) (float64, string) {
 
 // recentNoise is the median reading noise and lag-1 residual correlation of
 // the tank's last 10 fits, the correlation moved to the plan's sampling
-// interval (ρ^(Δplan/Δfit), an AR(1) in continuous time); n is 0 when the
-// state file has none.
-func recentNoise(cfg *config.Config, statePath, tank string, sampleS float64) (noiseM, rho float64, n int) {
-	if statePath == "" {
-		statePath = cfg.Outputs.StateFile
-	}
-	if _, err := os.Stat(statePath); err != nil {
-		return 0, 0, 0
-	}
-	st, err := store.Open(statePath, time.Second)
-	if err != nil {
-		return 0, 0, 0
-	}
-	defer st.Close()
+// interval (ρ^(Δplan/Δfit), an AR(1) in continuous time); n is 0 when
+// there are none.
+func recentNoise(st *store.Store, tank string, sampleS float64) (noiseM, rho float64, n int) {
 	fits, err := st.Fits(tank, 0, math.MaxInt64)
 	if err != nil || len(fits) == 0 {
 		return 0, 0, 0
