@@ -384,24 +384,10 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 	}
 	printFeeds(w, res.outcomes)
 	if d := res.notified; d.Pending+d.Expired > 0 {
-		fmt.Fprintf(w, "Notifications: %d sent, %d pending", d.Delivered, d.Pending)
-		if d.Expired > 0 {
-			fmt.Fprintf(w, ", %d expired undelivered (see the log)", d.Expired)
-		}
-		if d.LastError != "" {
-			fmt.Fprintf(w, "; failing: %s", d.LastError)
-		}
-		fmt.Fprintln(w, " (kept in the state file and retried on the next passes).")
+		printDelivery(w, "Notifications", "sent", d)
 	}
 	if d := res.writeBack; d.Delivered+d.Deferred+d.Expired+d.Pending > 0 {
-		fmt.Fprintf(w, "Write-back to InfluxDB: %d batches written, %d pending", d.Delivered, d.Pending)
-		if d.Expired > 0 {
-			fmt.Fprintf(w, ", %d expired undelivered (see the log)", d.Expired)
-		}
-		if d.LastError != "" {
-			fmt.Fprintf(w, "; failing: %s (kept in the state file and retried on the next passes)", d.LastError)
-		}
-		fmt.Fprintln(w, ".")
+		printDelivery(w, "Write-back to InfluxDB", "batches written", d)
 	}
 	if len(res.events) == 0 {
 		fmt.Fprintln(w, "No findings.")
@@ -412,6 +398,22 @@ func printSummary(w io.Writer, res *scanResult, outDir string, took time.Duratio
 		fmt.Fprintln(w, alert.Caution)
 	}
 	fmt.Fprintf(w, "Outputs: %s, %s, %s\n", filepath.Join(outDir, "events.jsonl"), filepath.Join(outDir, "findings.jsonl"), filepath.Join(outDir, "feeds.jsonl"))
+}
+
+// printDelivery writes one outbox line of the summary: what was delivered,
+// what waits, what expired, and why it fails.
+func printDelivery(w io.Writer, what, done string, d scan.Delivery) {
+	fmt.Fprintf(w, "%s: %d %s, %d pending", what, d.Delivered, done, d.Pending)
+	if d.Expired > 0 {
+		fmt.Fprintf(w, ", %d expired undelivered (see the log)", d.Expired)
+	}
+	if d.LastError != "" {
+		fmt.Fprintf(w, "; failing: %s", d.LastError)
+	}
+	if d.Pending > 0 {
+		fmt.Fprint(w, " (kept in the state file and retried on the next passes)")
+	}
+	fmt.Fprintln(w, ".")
 }
 
 // printFalls writes what became of the falls of the pass: how many were
