@@ -13,10 +13,7 @@ import (
 // 1901), the measured Cd 0.600 is plausible for a sharp-edged orifice, and a
 // bore entered as 60 mm makes K exceed the ideal: said as implausible.
 func TestCommissionCommand(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	y, err := os.ReadFile(filepath.Join(dir, "demo.yaml"))
 	if err != nil {
 		t.Fatal(err)

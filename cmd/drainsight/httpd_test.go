@@ -36,10 +36,7 @@ func get(t *testing.T, url, token string) (int, string) {
 // status page with every tank and the caution, and the bearer token
 // refused when wrong.
 func TestServeHTTPEndpoints(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	cfg, err := config.Load(filepath.Join(dir, "demo.yaml"))
 	if err != nil {
 		t.Fatal(err)

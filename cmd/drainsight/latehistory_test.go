@@ -16,10 +16,7 @@ import (
 // findings with the same dates (the day-by-day evaluation is the
 // project's own rule; the demo plant's faults are the reference).
 func TestLateHistoryEvaluatedDayByDay(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "30"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "30")
 	cfg := filepath.Join(dir, "demo.yaml")
 	// the reference: one scan of the full history in a fresh state
 	refOut := t.TempDir()

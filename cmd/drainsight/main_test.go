@@ -49,6 +49,17 @@ func TestHelpEveryCommand(t *testing.T) {
 	}
 }
 
+// demoPlant runs the demo over days days into a temporary directory and
+// returns it (demo.yaml, its data, state and outputs).
+func demoPlant(t *testing.T, days string) string {
+	t.Helper()
+	dir := t.TempDir()
+	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", days); err != nil {
+		t.Fatalf("demo: %v\n%s", err, stderr)
+	}
+	return dir
+}
+
 func readJSONL(t *testing.T, path string) []map[string]any {
 	t.Helper()
 	f, err := os.Open(path)

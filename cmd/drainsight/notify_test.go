@@ -24,10 +24,7 @@ import (
 // 2026-01-17 12:00, half a day after its sump's outlet blocked, so the
 // pass's own transitions are within the notify horizon.
 func TestNotificationsNeverLost(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	var mu sync.Mutex
 	broken := true
 	got := map[string]int{}

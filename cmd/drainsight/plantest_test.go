@@ -10,10 +10,7 @@ import (
 // table of candidates and a recommendation; an unreachable precision is
 // said plainly with what would reach it; bad flags are usage errors.
 func TestPlanTestCommand(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	cfg := filepath.Join(dir, "demo.yaml")
 	out, _, err := runArgs(t, "plan-test", "--config", cfg, "--tank", "KV-SMP-4", "--precision", "0.5%")
 	// the demo's sump reads with 4 mm of white noise (model/sim/demo.go):

@@ -87,10 +87,7 @@ func TestReportMissedWhileDown(t *testing.T) {
 // Writing the report records it in the state file, so a restart right after
 // does not write it again.
 func TestReportRunRecorded(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	cfg, err := config.Load(filepath.Join(dir, "demo.yaml"))
 	if err != nil {
 		t.Fatal(err)

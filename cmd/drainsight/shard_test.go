@@ -79,10 +79,7 @@ func TestParseShard(t *testing.T) {
 // The demo plant scanned as three shards, each with its own state file,
 // gives between them exactly the drains of one scan of the whole plant.
 func TestShardedScanMatchesWhole(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	cfg := filepath.Join(dir, "demo.yaml")
 	whole, _ := drainKeys(t, filepath.Join(dir, "events.jsonl"))
 	var parts []string

@@ -13,10 +13,7 @@ import (
 // damaged state file with exit status 1 and a message saying what to do,
 // never a Go fault (which would exit 2, the bad-usage code).
 func TestStateCheckBackupAndDamage(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	state := filepath.Join(dir, "state.db")
 	out, _, err := runArgs(t, "state", "check", "--state", state)
 	if err != nil || !strings.Contains(out, "sound") {
@@ -56,10 +53,7 @@ func TestStateCheckBackupAndDamage(t *testing.T) {
 // serve's daily copy: one per UTC day, the newest seven kept, each a sound
 // state file.
 func TestDailyBackup(t *testing.T) {
-	dir := t.TempDir()
-	if _, stderr, err := runArgs(t, "demo", "--out", dir, "--days", "20"); err != nil {
-		t.Fatalf("demo: %v\n%s", err, stderr)
-	}
+	dir := demoPlant(t, "20")
 	state := filepath.Join(dir, "state.db")
 	day := time.Date(2031, 5, 1, 9, 0, 0, 0, time.UTC)
 	var names []string
