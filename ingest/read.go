@@ -94,11 +94,11 @@ type ReadOptions struct {
 	// Tanks, when not nil, lists the tanks to read; samples of any other tank
 	// are counted as unknown_tank.
 	Tanks map[string]bool
-	// Range, when not nil, checks each level reading of a known tank: a
-	// non-empty answer says why the reading is out of range (counted as
-	// OutOfRange with its file and line, not delivered). StreamSeries sets
-	// it from the Conversions.
-	Range func(tank string, value float64) string
+	// Convert, when not nil, turns each level reading of a known tank
+	// into the value delivered (a head); a non-empty problem says why the
+	// reading is out of range (counted as OutOfRange with its file and
+	// line, not delivered). StreamSeries sets it from the Conversions.
+	Convert func(tank string, value float64) (float64, string)
 	// MaxLineBytes is the longest line accepted; longer lines are skipped and
 	// counted as malformed. 0 means DefaultMaxLineBytes (1 MiB).
 	MaxLineBytes int
@@ -207,8 +207,9 @@ func readFile(ctx context.Context, path string, format Format, opt ReadOptions, 
 			tank = ord.intern(tankB)
 			lastTank = tank
 		}
-		if opt.Range != nil {
-			if text := opt.Range(tank, v); text != "" {
+		if opt.Convert != nil {
+			var text string
+			if v, text = opt.Convert(tank, v); text != "" {
 				problem(OutOfRange, fmt.Sprintf("tank %q: %s", tank, text))
 				return
 			}
@@ -424,21 +425,16 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 		}
 	}
 	opt.Tanks = known
-	// The range check converts the reading; the sink that follows it for
-	// the same line takes that head instead of converting again. Both keep
-	// the tank of the line before (names are interned: == is a pointer
-	// compare when they match).
+	// Readings become heads before the order check, so that one out of
+	// range is a problem of its own. The tank of the line before is kept
+	// (names are interned: == is a pointer compare when they match).
 	var rTank string
 	var rConv Conversion
-	var lastH, lastV float64
-	lastOK := false
-	opt.Range = func(tank string, v float64) string {
+	opt.Convert = func(tank string, v float64) (float64, string) {
 		if tank != rTank {
 			rTank, rConv = tank, conv[tank]
 		}
-		h, text := rConv.Head(v)
-		lastH, lastV, lastOK = h, v, text == ""
-		return text
+		return rConv.Head(v)
 	}
 	flows := map[string]*meterReadings{}
 	if opt.InflowField != "" {
@@ -470,7 +466,7 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 	}
 	var sTank string
 	var sBuf *model.Series
-	sink := func(tank string, tNs int64, v float64) {
+	sink := func(tank string, tNs int64, h float64) {
 		s := sBuf
 		if tank != sTank || s == nil {
 			s = bufs[tank]
@@ -488,12 +484,7 @@ func StreamSeries(ctx context.Context, patterns []string, format Format, opt Rea
 			bufs[tank] = s
 		}
 		sTank, sBuf = tank, s
-		h := lastH
-		if !lastOK || tank != rTank || math.Float64bits(v) != math.Float64bits(lastV) {
-			c := conv[tank]
-			h, _ = c.Head(v)
-		}
-		s.Append(tNs, h)
+		s.Append(tNs, h) // converted by opt.Convert
 	}
 	ord := newOrder()
 	for _, p := range paths {
