@@ -214,25 +214,11 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	if len(pending) > 0 {
 		t.Errorf("%d write-back items still queued after the backfill completed: first %s (%s)", len(pending), pending[0].ID, pending[0].LastError)
 	}
-	c, err := influx.New(influx.Conn{URL: url, Bucket: bucket, Token: os.Getenv("DRAINSIGHT_INFLUX_TOKEN")}, influx.Options{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer c.Close()
-	src, err := c.Source(influx.SeriesSpec{Measurement: backfillFits, Field: "k_m25s", TankTag: "tank"})
-	if err != nil {
-		t.Fatal(err)
-	}
 	var ids []string
 	for tank := range tanks {
 		ids = append(ids, tank)
 	}
-	var written []string
-	if _, err := src.Pull(context.Background(), ids, 0, 1<<62, func(tank string, tNs int64, _ float64) {
-		written = append(written, fmt.Sprintf("%s|%d", tank, tNs))
-	}); err != nil {
-		t.Fatal(err)
-	}
+	written := writtenFits(t, url, bucket, backfillFits, ids)
 	var want []string
 	for tank := range tanks {
 		fits, _ := st.Fits(tank, 0, 1<<62)
@@ -408,6 +394,15 @@ func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
 	if left, _ := st.Pending(""); len(left) != 0 {
 		t.Errorf("%d items still queued after writes were accepted", len(left))
 	}
+	if n := len(writtenFits(t, url, bucket, meas, ids)); n != stored {
+		t.Errorf("InfluxDB holds %d fit points, the store %d fits", n, stored)
+	}
+}
+
+// writtenFits lists the fit points the write-back left in measurement meas
+// for the tanks, as tank|end time.
+func writtenFits(t *testing.T, url, bucket, meas string, tanks []string) []string {
+	t.Helper()
 	c, err := influx.New(influx.Conn{URL: url, Bucket: bucket, Token: os.Getenv("DRAINSIGHT_INFLUX_TOKEN")}, influx.Options{})
 	if err != nil {
 		t.Fatal(err)
@@ -417,11 +412,11 @@ func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	n, err := src.Pull(context.Background(), ids, 0, 1<<62, func(string, int64, float64) {})
-	if err != nil {
+	var out []string
+	if _, err := src.Pull(context.Background(), tanks, 0, 1<<62, func(tank string, tNs int64, _ float64) {
+		out = append(out, fmt.Sprintf("%s|%d", tank, tNs))
+	}); err != nil {
 		t.Fatal(err)
 	}
-	if n != stored {
-		t.Errorf("InfluxDB holds %d fit points, the store %d fits", n, stored)
-	}
+	return out
 }
