@@ -168,8 +168,9 @@ func writeBackSink(ct *config.Tank) string {
 // more than rangeMarginShare of its height, and at least rangeMarginM:
 // room for a zero offset, a drifting transmitter (which the sensor checks
 // must see) and a level in the overflow, not for a wrong unit. The margins
-// are this project's choice, not a published figure: the sensor checks'
-// largest simulated drift (±40 mm/day for weeks) stays inside them.
+// are this project's choice, not a published figure: a drifting
+// transmitter is reported as a sensor fault at a few centimetres
+// (detection's drift limit), long before its readings leave the margin.
 const (
 	rangeMarginM     = 0.1
 	rangeMarginShare = 0.1
