@@ -169,8 +169,9 @@ func writeBackSink(ct *config.Tank) string {
 // room for a zero offset, a drifting transmitter (which the sensor checks
 // must see) and a level in the overflow, not for a wrong unit. The margins
 // are this project's choice, not a published figure: a drifting
-// transmitter is reported as a sensor fault at a few centimetres
-// (detection's drift limit), long before its readings leave the margin.
+// transmitter is reported as a sensor fault once its empty reading moves
+// by detect.Options.DriftM (1 cm by default), long before its readings
+// leave the margin.
 const (
 	rangeMarginM     = 0.1
 	rangeMarginShare = 0.1
