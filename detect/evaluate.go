@@ -22,6 +22,9 @@ const (
 	SubSpikes  = "spikes"
 	SubNoise   = "noise"
 	SubDrift   = "drift"
+	// SubSinceTest: the baseline departs from the commissioning test that
+	// started it (see TestComparison).
+	SubSinceTest = "since_commissioning"
 )
 
 // Finding is one active condition on a tank.
@@ -110,6 +113,9 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 	var out []Finding
 	leak, leakDrift := s.leakFinding(now, opt)
 	if !s.Ref.Set || s.Monitored == 0 {
+		if f := s.testFinding(now, opt); f != nil {
+			out = append(out, *f)
+		}
 		if leak != nil {
 			out = append(out, *leak)
 		}
@@ -193,6 +199,10 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 			f.Evidence += "; idle periods show no leak, so the outlet passes more than its baseline"
 			out = append(out, f)
 		}
+	default:
+		if f := s.testFinding(now, opt); f != nil {
+			out = append(out, *f)
+		}
 	}
 	if leak != nil {
 		out = append(out, *leak)
@@ -201,6 +211,28 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 		out = append(out, *leakDrift)
 	}
 	return out
+}
+
+// testFinding reports a baseline that departs from the commissioning test
+// that started it (TestComparison, P < commissionAlpha): a restriction
+// when the baseline drains pass less than the test did, excess outflow
+// when they pass more; Subtype SubSinceTest. Nil otherwise.
+func (s *State) testFinding(now time.Time, opt Options) *Finding {
+	c := s.Ref.Test
+	if c == nil || !(c.P < commissionAlpha) {
+		return nil
+	}
+	f := Finding{Tank: s.Tank, DetectedAt: now, Kind: KindRestriction, Subtype: SubSinceTest,
+		MagnitudePct: 100 * math.Expm1(c.BaseLnK-c.TestLnK), Statistic: "commissioning_t", Value: math.Abs(c.T),
+		Threshold: distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(c.DOF)}.Quantile(1 - commissionAlpha/2),
+		PValue:    c.P, FalseAlarmYears: opt.FalseAlarmYears, Onset: nsTime(s.CommissionUntilNs)}
+	word := "below"
+	if c.T > 0 {
+		f.Kind, word = KindExcessOutflow, "above"
+	}
+	f.Evidence = fmt.Sprintf("the %d baseline drains after the commissioning test of %s give K %.1f %% %s the test's %d (t = %.1f with %d dof, p = %.2g < %g): the outlet changed between the test and the baseline",
+		c.BaseN, nsTime(s.EpochNs).Format("2006-01-02"), math.Abs(f.MagnitudePct), word, c.TestN, c.T, c.DOF, c.P, commissionAlpha)
+	return &f
 }
 
 // Shape decision constants (see classifyShift and the package doc).

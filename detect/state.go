@@ -6,6 +6,7 @@ import (
 	"slices"
 	"time"
 
+	"gonum.org/v1/gonum/stat"
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"drainsight/model"
@@ -34,12 +35,16 @@ type State struct {
 
 	// EpochNs is the start of the current outlet baseline (0 at
 	// commissioning, else the time of the last cleaning/repair/replacement).
-	EpochNs     int64   `json:"epoch_ns"`
-	LastAction  string  `json:"last_action,omitempty"`
-	LastFitNs   int64   `json:"last_fit_end_ns"`
-	LastIdleNs  int64   `json:"last_idle_end_ns"`
-	FitTimesNs  []int64 `json:"fit_times_ns"`  // recent accepted drain ends, for the drain frequency
-	IdleTimesNs []int64 `json:"idle_times_ns"` // recent idle ends, for the idle frequency
+	EpochNs    int64  `json:"epoch_ns"`
+	LastAction string `json:"last_action,omitempty"`
+	// CommissionUntilNs is the end of the accepted commissioning test that
+	// started the current baseline (0 when none did): the accepted drains
+	// up to it are the test's (see TestComparison).
+	CommissionUntilNs int64   `json:"commission_until_ns,omitempty"`
+	LastFitNs         int64   `json:"last_fit_end_ns"`
+	LastIdleNs        int64   `json:"last_idle_end_ns"`
+	FitTimesNs        []int64 `json:"fit_times_ns"`  // recent accepted drain ends, for the drain frequency
+	IdleTimesNs       []int64 `json:"idle_times_ns"` // recent idle ends, for the idle frequency
 
 	Ref   Reference `json:"ref"`
 	Learn []Point   `json:"learn"` // the reference set (baseline and learned drains)
@@ -92,6 +97,9 @@ type Reference struct {
 	// 0: the square-root law, K as fitted.
 	Exponent float64 `json:"exponent,omitempty"`
 	HRefM    float64 `json:"h_ref_m,omitempty"`
+	// Test is the comparison of the baseline drains with the commissioning
+	// test that started the baseline (nil when none did).
+	Test *TestComparison `json:"test,omitempty"`
 }
 
 // Point is one accepted drain: time (end of the fit), ln K, the relative
@@ -323,6 +331,72 @@ func (s *State) setReference(opt Options) {
 		s.Ref.LnK = ref
 		s.refDerived()
 	}
+	if s.CommissionUntilNs > 0 {
+		// Every baseline drain, screened or not: the screen is about the
+		// median of all, test included, and a drain it sets aside is
+		// evidence too.
+		var test, rest []float64
+		for _, p := range s.Learn {
+			if p.TimeNs <= s.CommissionUntilNs {
+				test = append(test, p.LnK)
+			} else {
+				rest = append(rest, p.LnK)
+			}
+		}
+		s.Ref.Test = compareWithTest(test, rest, opt.MinScatter)
+	}
+}
+
+// commissionAlpha is the false-alarm probability of the comparison of a
+// baseline with its commissioning test: one test per commissioned
+// baseline, so a healthy tank raises a finding from it with probability
+// 0.001 per commissioning.
+const commissionAlpha = 0.001
+
+// TestComparison compares the baseline drains that followed an accepted
+// commissioning test with the test's own drains: the ln K of the test's m
+// drains (mean TestLnK) against the n later baseline drains (mean
+// BaseLnK), by the two-sample t statistic with pooled variance (Student
+// 1908; Welch's form needs a variance of each sample, and a test is often
+// a single drain):
+//
+//	t = (mean_b - mean_t) / (s sqrt(1/m + 1/n)),  s^2 = Σ(x - mean)^2 / (m + n - 2)
+//
+// sums over each sample about its own mean, s floored at MinScatter, with
+// ν = m + n - 2 degrees of freedom; P is the two-sided p-value. A P below
+// commissionAlpha means the outlet changed between the test and the
+// baseline (fouled at once, or a valve left partly shut), which a baseline
+// learned from those drains cannot show: Evaluate reports it until the next
+// maintenance record restarts the baseline. Nil when fewer than 2 later
+// drains or no test drain was accepted.
+type TestComparison struct {
+	TestN   int     `json:"test_n"`
+	BaseN   int     `json:"base_n"`
+	TestLnK float64 `json:"test_ln_k"`
+	BaseLnK float64 `json:"base_ln_k"`
+	T       float64 `json:"t"`
+	DOF     int     `json:"dof"`
+	P       float64 `json:"p"`
+}
+
+func compareWithTest(test, base []float64, minScatter float64) *TestComparison {
+	m, n := len(test), len(base)
+	if m == 0 || n < 2 {
+		return nil
+	}
+	mt, mb := stat.Mean(test, nil), stat.Mean(base, nil)
+	var ss float64
+	for _, x := range test {
+		ss += (x - mt) * (x - mt)
+	}
+	for _, x := range base {
+		ss += (x - mb) * (x - mb)
+	}
+	dof := m + n - 2
+	sd := math.Max(math.Sqrt(ss/float64(dof)), minScatter)
+	t := (mb - mt) / (sd * math.Sqrt(1/float64(m)+1/float64(n)))
+	p := 2 * distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(dof)}.Survival(math.Abs(t))
+	return &TestComparison{TestN: m, BaseN: n, TestLnK: mt, BaseLnK: mb, T: t, DOF: dof, P: p}
 }
 
 // score standardises a drain against the reference (Hawkins 1987,
@@ -495,18 +569,7 @@ func (s *State) Reset(at time.Time, action string) error {
 	ns := at.UnixNano()
 	switch action {
 	case "cleaned", "repaired", "replaced":
-		s.EpochNs = ns
-		s.LastAction = action
-		s.Ref = Reference{}
-		s.Learn = nil
-		s.CUSUM = CUSUM{}
-		s.EWMA = EWMA{}
-		s.Monitored = 0
-		s.Points = nil
-		s.Idle = nil
-		s.LeakCUSUM, s.LeakN = 0, 0
-		s.LastFitNs = max(s.LastFitNs, ns)
-		s.LastIdleNs = max(s.LastIdleNs, ns)
+		s.restartBaseline(ns, action)
 	case "sensor-calibrated":
 		s.LastAction = action
 		s.Sensor.EpochNs = ns
@@ -518,6 +581,38 @@ func (s *State) Reset(at time.Time, action string) error {
 		return fmt.Errorf("detect: tank %s: unknown maintenance action %q (want cleaned, repaired, replaced or sensor-calibrated)", s.Tank, action)
 	}
 	return nil
+}
+
+// Commission records an accepted commissioning drain test over [from,
+// until]: the outlet baseline restarts at from (as Reset does for a
+// replaced outlet), so the test's drains are its first drains, and when it
+// is set the later baseline drains are compared with the test's
+// (TestComparison).
+func (s *State) Commission(from, until time.Time) error {
+	if !until.After(from) {
+		return fmt.Errorf("detect: tank %s: commissioning test ends at %s, not after its start %s", s.Tank, until.Format(time.RFC3339), from.Format(time.RFC3339))
+	}
+	s.restartBaseline(from.UnixNano(), "commissioned")
+	s.CommissionUntilNs = until.UnixNano()
+	return nil
+}
+
+// restartBaseline forgets the outlet baseline and the idle leak statistics
+// at ns: drains before it are ignored from now on.
+func (s *State) restartBaseline(ns int64, action string) {
+	s.EpochNs = ns
+	s.LastAction = action
+	s.CommissionUntilNs = 0
+	s.Ref = Reference{}
+	s.Learn = nil
+	s.CUSUM = CUSUM{}
+	s.EWMA = EWMA{}
+	s.Monitored = 0
+	s.Points = nil
+	s.Idle = nil
+	s.LeakCUSUM, s.LeakN = 0, 0
+	s.LastFitNs = max(s.LastFitNs, ns)
+	s.LastIdleNs = max(s.LastIdleNs, ns)
 }
 
 // exponentDevRef is how far from 1/2 the median exponent of the baseline

@@ -222,6 +222,10 @@ func Replay(st *store.Store, p *Plan, recs []store.Maintenance) (*detect.State, 
 			det.AddFit(*it.fit, p.Detect)
 		case it.idle != nil:
 			det.AddIdle(*it.idle, p.Detect)
+		case it.m.Action == store.ActionCommissioned && it.m.Test != nil:
+			if err := det.Commission(time.Unix(0, it.m.AtNs).UTC(), time.Unix(0, it.m.Test.UntilNs).UTC()); err != nil {
+				return nil, err
+			}
 		default:
 			if err := det.Reset(time.Unix(0, it.m.AtNs).UTC(), string(it.m.Action)); err != nil {
 				return nil, err

@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"slices"
 	"strings"
 	"time"
@@ -441,15 +442,20 @@ func (s *Store) DeleteTank(tank string) error {
 type Action string
 
 // The maintenance actions. A cleaned, repaired or replaced outlet resets the
-// detector's baseline; a calibrated sensor resets the sensor checks.
+// detector's baseline; a calibrated sensor resets the sensor checks. An
+// accepted commissioning test (ActionCommissioned, written by `drainsight
+// commission --accept`, never by hand) resets the baseline at the start of
+// the test and anchors it at the test's K.
 const (
 	ActionCleaned          Action = "cleaned"
 	ActionRepaired         Action = "repaired"
 	ActionReplaced         Action = "replaced"
 	ActionSensorCalibrated Action = "sensor-calibrated"
+	ActionCommissioned     Action = "commissioned"
 )
 
-// ParseAction checks s against the known actions.
+// ParseAction checks s against the actions a person records by hand
+// (ActionCommissioned is not one: it carries the test's result).
 func ParseAction(s string) (Action, error) {
 	switch a := Action(s); a {
 	case ActionCleaned, ActionRepaired, ActionReplaced, ActionSensorCalibrated:
@@ -465,6 +471,40 @@ type Maintenance struct {
 	AtNs   int64  `json:"at_ns"`
 	Action Action `json:"action"`
 	Note   string `json:"note,omitempty"`
+	// Test is the accepted commissioning test of an ActionCommissioned
+	// record (nil otherwise); AtNs is the start of its window.
+	Test *Commissioning `json:"test,omitempty"`
+}
+
+// Commissioning is the result of an accepted commissioning drain test: its
+// window ends at UntilNs, Drains drains were fitted in it, and their
+// precision-weighted K is KM25s (m^2.5/s) with standard error KSEM25s.
+type Commissioning struct {
+	UntilNs int64   `json:"until_ns"`
+	Drains  int     `json:"drains"`
+	KM25s   float64 `json:"k_m25s"`
+	KSEM25s float64 `json:"k_se_m25s"`
+}
+
+// check says what is wrong with m's action and test, if anything.
+func (m Maintenance) check() error {
+	if m.Action == ActionCommissioned {
+		t := m.Test
+		switch {
+		case t == nil:
+			return errors.New("a commissioned record needs its test result")
+		case t.UntilNs <= m.AtNs:
+			return fmt.Errorf("commissioning test window ends at %d ns, not after its start %d ns", t.UntilNs, m.AtNs)
+		case !(t.KM25s > 0) || math.IsInf(t.KM25s, 0) || !(t.KSEM25s >= 0) || math.IsInf(t.KSEM25s, 0) || t.Drains < 1:
+			return fmt.Errorf("commissioning test result K %g ± %g m^2.5/s from %d drains is not usable", t.KM25s, t.KSEM25s, t.Drains)
+		}
+		return nil
+	}
+	if m.Test != nil {
+		return fmt.Errorf("a %s record carries no test result", m.Action)
+	}
+	_, err := ParseAction(string(m.Action))
+	return err
 }
 
 // AddMaintenance stores m under a new id (m.ID is ignored) and returns the id.
@@ -472,7 +512,7 @@ func (s *Store) AddMaintenance(m Maintenance) (uint64, error) {
 	if m.Tank == "" {
 		return 0, errors.New("store: add maintenance: empty tank id")
 	}
-	if _, err := ParseAction(string(m.Action)); err != nil {
+	if err := m.check(); err != nil {
 		return 0, fmt.Errorf("store: add maintenance for tank %q: %w", m.Tank, err)
 	}
 	err := s.update(func(tx *bolt.Tx) error {

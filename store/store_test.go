@@ -384,6 +384,36 @@ func TestMaintenanceCRUD(t *testing.T) {
 	}
 }
 
+// A commissioning record keeps its test result; one without a result, with
+// a window that ends before it starts or with an unusable K is refused, as
+// is a test result on any other action.
+func TestMaintenanceCommissioning(t *testing.T) {
+	s := openTemp(t)
+	test := &Commissioning{UntilNs: 900, Drains: 2, KM25s: 0.0035, KSEM25s: 4e-6}
+	id, err := s.AddMaintenance(Maintenance{Tank: "T1", AtNs: 100, Action: ActionCommissioned, Test: test})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := s.Maintenance("T1")
+	if err != nil || len(got) != 1 || got[0].ID != id || got[0].Test == nil || *got[0].Test != *test {
+		t.Fatalf("stored commissioning record: %+v, %v", got, err)
+	}
+	for name, m := range map[string]Maintenance{
+		"no result":       {Tank: "T1", AtNs: 100, Action: ActionCommissioned},
+		"window reverse":  {Tank: "T1", AtNs: 100, Action: ActionCommissioned, Test: &Commissioning{UntilNs: 50, Drains: 1, KM25s: 0.003}},
+		"zero K":          {Tank: "T1", AtNs: 100, Action: ActionCommissioned, Test: &Commissioning{UntilNs: 900, Drains: 1}},
+		"no drains":       {Tank: "T1", AtNs: 100, Action: ActionCommissioned, Test: &Commissioning{UntilNs: 900, KM25s: 0.003}},
+		"result on clean": {Tank: "T1", AtNs: 100, Action: ActionCleaned, Test: test},
+	} {
+		if _, err := s.AddMaintenance(m); err == nil {
+			t.Errorf("%s: got nil error", name)
+		}
+	}
+	if _, err := ParseAction("commissioned"); err == nil {
+		t.Error("ParseAction accepts commissioned, which only commission --accept may record")
+	}
+}
+
 func TestAlertsAndRuns(t *testing.T) {
 	s := openTemp(t)
 	put := []AlertRecord{
