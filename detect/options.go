@@ -167,6 +167,14 @@ func (o Options) withDefaults() Options {
 const DefaultSilentLimit = 4 * time.Hour
 
 // qualityRank orders the grades, A best.
+// Accepts reports whether the detector takes fit f as a drain of the
+// outlet (AddFit's rule): graded at least MinQuality, with a finite
+// positive K.
+func (o Options) Accepts(f model.Fit) bool {
+	o = o.withDefaults()
+	return qualityRank(f.Quality) >= qualityRank(o.MinQuality) && f.KM25s > 0 && !math.IsInf(f.KM25s, 0)
+}
+
 func qualityRank(q model.Quality) int {
 	switch q {
 	case model.QualityA:

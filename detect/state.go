@@ -225,7 +225,7 @@ func (s *State) AddFit(f model.Fit, opt Options) {
 			TimeNs: f.EndNs, NoiseM: math.NaN(), EmptyHeadM: f.EmptyHeadM, HasEmpty: true,
 		}, maxSensorRecs)
 	}
-	if qualityRank(f.Quality) < qualityRank(opt.MinQuality) || !(f.KM25s > 0) || math.IsInf(f.KM25s, 0) {
+	if !opt.Accepts(f) {
 		return
 	}
 	se := f.KSEM25s / f.KM25s

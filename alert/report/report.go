@@ -49,6 +49,35 @@ type Tank struct {
 	// is known); Gaps are the data gaps that overlap the reporting week.
 	Feed detect.FeedStatus
 	Gaps []detect.Gap
+	// Work is the tank's maintenance on record that the report shows
+	// (oldest first): the records of the trend window and the one that
+	// started the current baseline.
+	Work []Work
+}
+
+// Work is one maintenance record. For an accepted commissioning test
+// (Action "commissioned") Until is the end of the test window and KM25s
+// with [KLo95M25s, KHi95M25s] its K (m^2.5/s) and 95 % interval from
+// Drains drains; zero otherwise.
+type Work struct {
+	At                          time.Time
+	Action, Note                string
+	Until                       time.Time
+	Drains                      int
+	KM25s, KLo95M25s, KHi95M25s float64
+}
+
+// Text is the record in words, without its date.
+func (w Work) Text() string {
+	s := w.Action
+	if w.Action == "commissioned" && w.KM25s > 0 {
+		s = fmt.Sprintf("commissioning test to %s accepted as the starting baseline: K %s (95 %% CI %s–%s) from %d drains",
+			w.Until.UTC().Format("2006-01-02 15:04"), kText(w.KM25s), kText(w.KLo95M25s), kText(w.KHi95M25s), w.Drains)
+	}
+	if w.Note != "" {
+		s += "; " + w.Note
+	}
+	return s
 }
 
 // Input is everything the report shows.
@@ -272,6 +301,20 @@ func Markdown(w io.Writer, in Input) error {
 	b.WriteString("\nRestriction: the outlet passes less than at baseline (fouling, scaling, a blockage or a valve not fully open). " +
 		"Excess outflow: it passes more (erosion, a leak downstream). Tank leak: the level falls while the outlet is shut. " +
 		"Sensor fault: the level reading itself is suspect; outlet findings are withheld while it lasts.\n")
+	b.WriteString("\n## Maintenance on record\n\n")
+	anyWork := false
+	for _, r := range rows {
+		for _, w := range r.Work {
+			if !anyWork {
+				b.WriteString("| tank | date | work |\n|---|---|---|\n")
+				anyWork = true
+			}
+			fmt.Fprintf(&b, "| %s | %s | %s |\n", r.ID, w.At.UTC().Format("2006-01-02"), w.Text())
+		}
+	}
+	if !anyWork {
+		b.WriteString("None in the trend window.\n")
+	}
 	b.WriteString("\n## Data feeds\n\n" + feedNote + "\n\n")
 	b.WriteString("| tank | feed at the last scan | last sample | gaps this week | longest gap | without samples this week |\n")
 	b.WriteString("|---|---|---|---|---|---|\n")
@@ -363,6 +406,10 @@ the dashed line is the tank's baseline, the dotted one the maintenance threshold
 <h2>Findings</h2>
 <ul>{{range .Rows}}{{$id := .ID}}{{range .Findings}}<li><b>{{$id}}: {{.Finding.Kind}}{{if .Finding.Subtype}} ({{.Finding.Subtype}}){{end}}</b>, {{.Status}} since {{day .FirstSeen}}. {{.Finding.Evidence}}</li>
 {{end}}{{end}}</ul>
+<h2>Maintenance on record</h2>
+{{if .AnyWork}}<table><tr><th>tank</th><th>date</th><th>work</th></tr>
+{{range .Rows}}{{$id := .ID}}{{range .Work}}<tr><td>{{$id}}</td><td>{{day .At}}</td><td>{{.Text}}</td></tr>
+{{end}}{{end}}</table>{{else}}<p>None in the trend window.</p>{{end}}
 <h2>Data feeds</h2>
 <p>{{.FeedNote}}</p>
 <table><tr><th>tank</th><th>feed at the last scan</th><th>last sample</th><th>gaps this week</th><th>longest gap</th><th>without samples this week</th></tr>
@@ -373,10 +420,16 @@ the dashed line is the tank's baseline, the dotted one the maintenance threshold
 
 // HTML writes the report as one self-contained HTML page.
 func HTML(w io.Writer, in Input) error {
+	rows := summarize(in)
+	anyWork := false
+	for _, r := range rows {
+		anyWork = anyWork || len(r.Work) > 0
+	}
 	return page.Execute(w, struct {
 		In       Input
 		Rows     []row
 		Caution  string
 		FeedNote string
-	}{in, summarize(in), alert.Caution, feedNote})
+		AnyWork  bool
+	}{in, rows, alert.Caution, feedNote, anyWork})
 }

@@ -50,7 +50,8 @@ func input() Input {
 			{ID: "basin-4", BaselineKM25s: 0.03, Fits: fits(0.03, 0, 20), Rank: detect.FleetRank{Tank: "basin-4", QValue: 0.9},
 				Findings: []alert.Record{{Status: alert.StatusOngoing, FirstSeen: now.Add(-6 * time.Hour), Finding: notice}},
 				Feed:     silent, Gaps: []detect.Gap{{StartNs: now.Add(-100 * time.Hour).UnixNano(), EndNs: now.Add(-99*time.Hour - 30*time.Minute).UnixNano()}}},
-			{ID: "new-3"},
+			{ID: "new-3", Work: []Work{{At: now.Add(-9 * 24 * time.Hour), Action: "commissioned", Until: now.Add(-9*24*time.Hour + 3*time.Hour),
+				Drains: 2, KM25s: 0.0124, KLo95M25s: 0.01236, KHi95M25s: 0.01244, Note: "new bottom valve"}}},
 		},
 	}
 }

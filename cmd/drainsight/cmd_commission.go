@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"strings"
 	"time"
 
 	"drainsight/config"
@@ -18,7 +19,16 @@ ideal K of the bore (Cd = 1), and, for the configured outlet.kind, the usual
 range of Cd (or the data sheet's Kv for a valve). A result that cannot be
 right is said in plain words: K above the ideal (a datum or unit error), Cd
 far below the usual range (a valve partly open, an obstruction, a wrong
-bore), a fit far off the square-root law (a submerged outlet, a long pipe).`
+bore), a fit far off the square-root law (a submerged outlet, a long pipe).
+
+With --accept a plausible test is stored as the tank's starting baseline: a
+maintenance record "commissioned" at --since with the test's K (list it with
+maintenance list, undo it with maintenance remove). The next scan replays
+the stored drains: the baseline restarts at the test, the test's drains are
+its first drains, and once it is set the drains after the test are compared
+with the test's K (a baseline more than a chance difference away, p < 0.001,
+is reported as a restriction or excess outflow since commissioning).
+Accepting the same window twice adds nothing.`
 
 // cdRange is the usual discharge coefficient of an outlet kind and its
 // source.
@@ -46,6 +56,8 @@ func runCommission(ctx context.Context, e *env, args []string) error {
 	tankID := fs.String("tank", "", "tank id (required)")
 	since := fs.String("since", "", "start of the test window, RFC 3339 or YYYY-MM-DD (required)")
 	until := fs.String("until", "", "end of the test window (required)")
+	accept := fs.Bool("accept", false, "store a plausible test as the tank's starting baseline")
+	note := fs.String("note", "", "free text for the record written by --accept")
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
 	}
@@ -67,6 +79,10 @@ func runCommission(ctx context.Context, e *env, args []string) error {
 	ct := cfg.Tank(*tankID)
 	if ct == nil {
 		return &usageError{fmt.Sprintf("commission: no tank %q in %s", *tankID, *cfgPath)}
+	}
+	p, err := buildPlan(*ct)
+	if err != nil {
+		return fmt.Errorf("%s: tank %s: %w", cfg.File, ct.ID, err)
 	}
 	path := *statePath
 	if path == "" {
@@ -103,31 +119,79 @@ func runCommission(ctx context.Context, e *env, args []string) error {
 		fmt.Fprintf(w, "| %s | %.2f | %.2f | %.4g | %.4g-%.4g | %s | %.4g | %.3f | %s |\n", time.Unix(0, f.StartNs).UTC().Format("2006-01-02 15:04"),
 			f.H0M, f.H1M, f.KM25s, f.KLo95M25s, f.KHi95M25s, fmtCd(model.CdFromK(f.KM25s, bore)), model.CdAFromK(f.KM25s), f.Exponent, f.Quality)
 	}
-	// The test's K: the precision-weighted mean of its drains.
+	// The test's K: the precision-weighted mean of the drains the detector
+	// accepts (all of them when it accepts none, for the judgement).
+	var used []model.Fit
+	for _, f := range fits {
+		if p.Detect.Accepts(f) {
+			used = append(used, f)
+		}
+	}
+	accepted := len(used)
+	if accepted == 0 {
+		used = fits
+	}
+	k, se := weightedK(used)
+	fmt.Fprintf(w, "\nK = %.4g m^2.5/s ± %.2g (95 %% interval %.4g to %.4g) from %d drains; Cd*a = %.4g m^2; Kv = %.4g m^3/h.\n",
+		k, 1.96*se, k-1.96*se, k+1.96*se, len(used), model.CdAFromK(k), model.KvFromK(k))
+	msgs, implausible := judgeCommission(ct.Outlet, k, ideal, fits)
+	for _, msg := range msgs {
+		fmt.Fprintln(w, msg)
+	}
+	fmt.Fprintln(w, "\n"+commissionCaution)
+	if !*accept {
+		return nil
+	}
+	switch {
+	case implausible:
+		return fmt.Errorf("commission --accept: tank %s: the test is implausible (see above): correct the config or repeat the test; nothing stored", ct.ID)
+	case accepted == 0:
+		return fmt.Errorf("commission --accept: tank %s: no drain of the test is graded %s or better; nothing stored", ct.ID, p.Detect.MinQuality)
+	}
+	recs, err := st.Maintenance(ct.ID)
+	if err != nil {
+		return err
+	}
+	for _, m := range recs {
+		if m.Action == store.ActionCommissioned && m.AtNs == from.UnixNano() && m.Test != nil && m.Test.UntilNs == to.UnixNano() {
+			fmt.Fprintf(w, "\nThis test is already accepted as maintenance record %d; nothing added.\n", m.ID)
+			return nil
+		}
+	}
+	id, err := st.AddMaintenance(store.Maintenance{Tank: ct.ID, AtNs: from.UnixNano(), Action: store.ActionCommissioned, Note: *note,
+		Test: &store.Commissioning{UntilNs: to.UnixNano(), Drains: accepted, KM25s: k, KSEM25s: se}})
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "\nAccepted as maintenance record %d: the baseline of %s restarts at %s with the test's %d drains; the next scan replays the stored drains and compares the baseline with the test's K.\n",
+		id, ct.ID, from.Format(time.RFC3339), accepted)
+	return nil
+}
+
+// commissionCaution closes every commissioning printout.
+const commissionCaution = "Filling and draining a tank for a test is work on the plant: isolate and lock out as your site's procedures require, " +
+	"keep clear of the outlet and the receiving drain, watch for overflow, and follow local codes and licensed practice."
+
+// weightedK is the precision-weighted mean K of fits (weights 1/se^2) and
+// its standard error; the first fit's when none has a standard error.
+func weightedK(fits []model.Fit) (k, se float64) {
 	var sw, swk float64
 	for _, f := range fits {
-		if wgt := 1 / (f.KSEM25s * f.KSEM25s); f.KSEM25s > 0 {
+		if f.KSEM25s > 0 {
+			wgt := 1 / (f.KSEM25s * f.KSEM25s)
 			sw += wgt
 			swk += wgt * f.KM25s
 		}
 	}
-	k := fits[0].KM25s
-	se := fits[0].KSEM25s
-	if sw > 0 {
-		k, se = swk/sw, math.Sqrt(1/sw)
+	if sw == 0 {
+		return fits[0].KM25s, fits[0].KSEM25s
 	}
-	fmt.Fprintf(w, "\nK = %.4g m^2.5/s ± %.2g (95 %% interval %.4g to %.4g); Cd*a = %.4g m^2; Kv = %.4g m^3/h.\n",
-		k, 1.96*se, k-1.96*se, k+1.96*se, model.CdAFromK(k), model.KvFromK(k))
-	for _, msg := range judgeCommission(ct.Outlet, k, ideal, fits) {
-		fmt.Fprintln(w, msg)
-	}
-	fmt.Fprintln(w, "\nDraining a tank for a test is work on the plant: follow your site's procedures, local codes and licensed practice.")
-	return nil
+	return swk / sw, math.Sqrt(1 / sw)
 }
 
-// judgeCommission says what the test's K means for the configured outlet.
-func judgeCommission(o config.Outlet, k, ideal float64, fits []model.Fit) []string {
-	var out []string
+// judgeCommission says what the test's K means for the configured outlet,
+// and whether it cannot be right (implausible).
+func judgeCommission(o config.Outlet, k, ideal float64, fits []model.Fit) (out []string, implausible bool) {
 	if !math.IsNaN(ideal) {
 		cd := k / ideal
 		out = append(out, fmt.Sprintf("Ideal K of the %.0f mm bore (Cd = 1): %.4g m^2.5/s; measured Cd %.3f.", 1000*o.DiameterM, ideal, cd))
@@ -140,6 +204,8 @@ func judgeCommission(o config.Outlet, k, ideal float64, fits []model.Fit) []stri
 			out = append(out, fmt.Sprintf("Unusual: Cd %.3f is outside the usual %s; check the outlet and the config.", cd, r.source))
 		case ok:
 			out = append(out, fmt.Sprintf("Plausible: Cd %.3f is within the usual %s.", cd, r.source))
+		case o.Kind == "":
+			out = append(out, "Set outlet.kind (orifice, short_tube or valve) to compare Cd with the usual range of the outlet.")
 		}
 	}
 	if o.Kind == "valve" && o.KvM3h > 0 {
@@ -158,7 +224,10 @@ func judgeCommission(o config.Outlet, k, ideal float64, fits []model.Fit) []stri
 			out = append(out, fmt.Sprintf("The drain from %s does not follow the square-root law (exponent %.2f): the outlet may be submerged, or a long pipe.", time.Unix(0, f.StartNs).UTC().Format("2006-01-02 15:04"), f.Exponent))
 		}
 	}
-	return out
+	for _, m := range out {
+		implausible = implausible || strings.HasPrefix(m, "IMPLAUSIBLE")
+	}
+	return out, implausible
 }
 
 func fmtCd(cd float64) string {

@@ -180,7 +180,12 @@ func runMaintenance(ctx context.Context, e *env, args []string) error {
 				return err
 			}
 			for _, m := range recs {
-				fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\n", m.ID, m.Tank, time.Unix(0, m.AtNs).UTC().Format(time.RFC3339), m.Action, m.Note)
+				note := m.Note
+				if t := m.Test; t != nil {
+					note = strings.TrimSpace(fmt.Sprintf("test to %s: K %.4g ± %.2g m^2.5/s (95 %%) from %d drains. %s",
+						time.Unix(0, t.UntilNs).UTC().Format(time.RFC3339), t.KM25s, 1.96*t.KSEM25s, t.Drains, note))
+				}
+				fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\n", m.ID, m.Tank, time.Unix(0, m.AtNs).UTC().Format(time.RFC3339), m.Action, note)
 			}
 		}
 		tw.Flush()

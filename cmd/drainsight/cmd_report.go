@@ -161,6 +161,11 @@ func buildReport(cfg *config.Config, plans []*plan, st *store.Store, now time.Ti
 			}
 			t.Feed = fr.FeedStatus
 		}
+		work, err := st.Maintenance(id)
+		if err != nil {
+			return in, err
+		}
+		t.Work = reportWork(work, now.Add(-reportWindow), now)
 		recs, err := st.Alerts(id)
 		if err != nil {
 			return in, err
@@ -226,4 +231,30 @@ func evidence(p float64) float64 {
 		return 1
 	}
 	return p
+}
+
+// reportWork picks a tank's maintenance records for the report (recs in
+// time order): those between from and now, and before them the last one
+// that restarted the outlet baseline, which the report's K are compared
+// against.
+func reportWork(recs []store.Maintenance, from, now time.Time) []report.Work {
+	var out []report.Work
+	start := -1 // the last baseline restart before from
+	for i, m := range recs {
+		if m.AtNs < from.UnixNano() && m.Action != store.ActionSensorCalibrated {
+			start = i
+		}
+	}
+	for i, m := range recs {
+		if m.AtNs > now.UnixNano() || (i != start && m.AtNs < from.UnixNano()) {
+			continue
+		}
+		w := report.Work{At: time.Unix(0, m.AtNs).UTC(), Action: string(m.Action), Note: m.Note}
+		if t := m.Test; t != nil {
+			w.Until, w.Drains = time.Unix(0, t.UntilNs).UTC(), t.Drains
+			w.KM25s, w.KLo95M25s, w.KHi95M25s = t.KM25s, t.KM25s-1.96*t.KSEM25s, t.KM25s+1.96*t.KSEM25s
+		}
+		out = append(out, w)
+	}
+	return out
 }
