@@ -45,6 +45,18 @@ func TestCommissionCommand(t *testing.T) {
 	if err != nil || !strings.Contains(out, "IMPLAUSIBLE: K is above the ideal constant") {
 		t.Errorf("a 60 mm bore: %v\n%s", err, out)
 	}
+	// The 100 mm bore entered with the wrong unit either way: as 10 mm
+	// (its 10 cm written as mm) K is 60 times the ideal; as 100 cm Cd is
+	// 0.60/100 = 0.006. Both are said to be implausible.
+	for _, c := range []struct{ bore, want string }{
+		{"10 mm", "IMPLAUSIBLE: K is above the ideal constant"},
+		{"100 cm", "IMPLAUSIBLE: Cd 0.006 is far below the usual sharp-edged orifice"},
+	} {
+		out, _, err = runArgs(t, args(write("unit.yaml", strings.Replace(bore, "100 mm", c.bore, 1)+"      kind: orifice\n"))...)
+		if err != nil || !strings.Contains(out, c.want) {
+			t.Errorf("a bore of %s: %v\n%s", c.bore, err, out)
+		}
+	}
 	// --accept refuses the implausible bore and stores the plausible test
 	// once; the next scan restarts the baseline at the test with its
 	// drains first, and the report shows the record.
