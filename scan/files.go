@@ -193,7 +193,7 @@ func linkReceivers(ctx context.Context, tanks []*FileTank) {
 		}
 		lv, err := levels[rt.Plan.ID], failed[rt.Plan.ID]
 		if lv == nil && err == nil {
-			if lv, err = readReceiver(ctx, rt); err != nil {
+			if lv, err = ReadReceiver(ctx, rt); err != nil {
 				failed[rt.Plan.ID] = err
 			} else {
 				levels[rt.Plan.ID] = lv
@@ -209,9 +209,9 @@ func linkReceivers(ctx context.Context, tanks []*FileTank) {
 	}
 }
 
-// readReceiver reads a receiving tank's level above its bottom from its
+// ReadReceiver reads a receiving tank's level above its bottom from its
 // files (their problems are reported by the receiving tank's own read).
-func readReceiver(ctx context.Context, t *FileTank) (*model.ReceivingLevel, error) {
+func ReadReceiver(ctx context.Context, t *FileTank) (*model.ReceivingLevel, error) {
 	conv := t.Src.Conv
 	conv.OutletElevM, conv.InflowToSI = 0, 0
 	conv.MinHeadM, conv.MaxHeadM = conv.MinHeadM+t.Src.Conv.OutletElevM, conv.MaxHeadM+t.Src.Conv.OutletElevM

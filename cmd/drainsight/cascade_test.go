@@ -81,14 +81,18 @@ func cascadeHistory(cycles int, aU, aL, kU, kL, zU float64, rng *rand.Rand) (ts 
 // method "submerged", K within 1 % of the integrated truth and an exponent
 // near 1/2 (as a free outlet the same drains give an exponent far from it,
 // TestSubmergedOutletTwoTanks in model).
-func TestScanCascade(t *testing.T) {
+// cascadePlant writes the two-tank plant of cascadeHistory (an upper tank
+// UP draining into LO, six cycles) as CSV files and a config; it returns
+// the config's path and UP's true K.
+func cascadePlant(t *testing.T) (path string, kU float64) {
+	t.Helper()
 	const (
 		dU, dL = 1.2, 1.4 // m
 		zU     = 0.5      // the upper outlet above the lower tank's bottom, m
 	)
 	aU, aL := math.Pi/4*dU*dU, math.Pi/4*dL*dL
 	// 40 mm and 50 mm outlets with Cd 0.61 (sharp-edged orifice, common practice)
-	kU := 0.61 * math.Pi / 4 * 0.04 * 0.04 * model.Sqrt2g
+	kU = 0.61 * math.Pi / 4 * 0.04 * 0.04 * model.Sqrt2g
 	kL := 0.61 * math.Pi / 4 * 0.05 * 0.05 * model.Sqrt2g
 	ts, hu, hl := cascadeHistory(6, aU, aL, kU, kL, zU, rand.New(rand.NewPCG(3, 4)))
 	start := time.Date(2031, 5, 1, 0, 0, 0, 0, time.UTC).UnixNano()
@@ -122,10 +126,16 @@ func TestScanCascade(t *testing.T) {
     source: {format: csv, paths: [LO.csv]}
 outputs: {directory: out}
 `, zU, dU, dL)
-	path := filepath.Join(dir, "plant.yaml")
+	path = filepath.Join(dir, "plant.yaml")
 	if err := os.WriteFile(path, []byte(cfg), 0o644); err != nil {
 		t.Fatal(err)
 	}
+	return path, kU
+}
+
+func TestScanCascade(t *testing.T) {
+	path, kU := cascadePlant(t)
+	dir := filepath.Dir(path)
 	out, stderr, err := runArgs(t, "scan", "--config", path, "--final")
 	if err != nil {
 		t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
@@ -144,6 +154,18 @@ outputs: {directory: out}
 	}
 	if up < 5 {
 		t.Errorf("%d drains of UP written, want the 6 simulated (the first may fall in the warm-up)\n%s", up, out)
+	}
+}
+
+// check segments a tank in cascade on the head across its outlet, as scan
+// does: UP's drains into the filling LO are fitted, so no setting is said
+// to reject them all (segmented on its own head they look like drains with
+// inflow and are all rejected).
+func TestCheckCascade(t *testing.T) {
+	path, _ := cascadePlant(t)
+	out, _, err := runArgs(t, "check", "--config", path)
+	if err != nil || strings.Contains(out, "warning: tank UP") {
+		t.Errorf("check of the cascade: %v\n%s", err, out)
 	}
 }
 

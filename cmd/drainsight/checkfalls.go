@@ -23,29 +23,43 @@ const checkSample = 14 * 24 * time.Hour
 // rejected: a setting (a minimum duration or drop, say) that no drain of
 // this tank can meet. Read errors are left to scan, which reports them.
 func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
+	var files []*plan
 	for _, p := range plans {
-		src := p.cfg.Source
-		if src.Format == "influx" {
+		if p.cfg.Source.Format != "influx" {
+			files = append(files, p)
+		}
+	}
+	fts := fileTanks(plans, files)
+	byID := map[string]*scan.FileTank{}
+	for _, ft := range fts {
+		byID[ft.Plan.ID] = ft
+	}
+	for i, ft := range fts {
+		p := files[i]
+		if ft.Out.Err != nil {
 			continue
 		}
-		format, err := ingest.ParseFormat(src.Format)
-		if err != nil {
-			continue
+		src := ft.Src
+		// A tank in cascade is segmented on the head across its outlet,
+		// as scan does: the receiving tank's level from its own files.
+		var recv *model.ReceivingLevel
+		if src.Into != "" {
+			rt := byID[src.Into]
+			if rt == nil || rt.Out.Err != nil {
+				continue
+			}
+			lv, err := scan.ReadReceiver(ctx, rt)
+			if err != nil {
+				continue
+			}
+			lv.OutletAboveM = src.OutletAboveM
+			recv = lv
 		}
-		prec, err := ingest.ParsePrecision(src.Precision)
-		if err != nil {
-			continue
-		}
-		inflowField := ""
-		if p.cfg.Sensor.Inflow != nil {
-			inflowField = p.cfg.Sensor.Inflow.Field
-		}
-		opt := ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field,
-			TankTag: src.TankTag, InflowField: inflowField}
+		opt := src.Read
 		seg := model.NewSegmenter(&p.Tank, p.Segment)
 		cctx, cancel := context.WithCancel(ctx)
 		first := int64(0)
-		_, err = ingest.StreamSeries(cctx, src.Paths, format, opt, map[string]ingest.Conversion{p.cfg.ID: p.conv}, scan.FileChunk, func(c *model.Series) {
+		_, err := ingest.StreamSeries(cctx, src.Paths, src.Format, opt, map[string]ingest.Conversion{p.cfg.ID: p.conv}, scan.FileChunk, func(c *model.Series) {
 			if c.Tank != p.cfg.ID || c.Len() == 0 {
 				return
 			}
@@ -60,7 +74,11 @@ func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
 			if c.InflowM3s != nil {
 				q = c.InflowM3s[:n]
 			}
-			seg.Push(c.TimeNs[:n], c.HeadM[:n], q)
+			if recv != nil {
+				seg.PushSubmerged(c.TimeNs[:n], c.HeadM[:n], q, recv.At(c.TimeNs[:n]))
+			} else {
+				seg.Push(c.TimeNs[:n], c.HeadM[:n], q)
+			}
 			if n < c.Len() {
 				cancel()
 			}

@@ -154,12 +154,12 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 			}
 		}
 	}
-	var fileTanks, influxTanks []*plan
+	var filePlans, influxTanks []*plan
 	for _, p := range j.plans {
 		if p.cfg.Source.Format == "influx" {
 			influxTanks = append(influxTanks, p)
 		} else {
-			fileTanks = append(fileTanks, p)
+			filePlans = append(filePlans, p)
 		}
 	}
 	now := opt.now
@@ -184,7 +184,7 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	if !now.IsZero() {
 		limit = now.UnixNano()
 	}
-	files := j.fileTanks(fileTanks)
+	files := fileTanks(j.plans, filePlans)
 	rep, newestNs := scan.ReadFiles(ctx, j.st, j.log, files, limit)
 	var newest time.Time
 	if newestNs != 0 {
@@ -226,13 +226,13 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	return res, err
 }
 
-// fileTanks describes the pass's file tanks for scan.ReadFiles: their
-// sources from the config (a setting that does not parse fails the tank),
-// and for a tank in cascade the receiving tank and the outlet's height
-// above its bottom.
-func (j *job) fileTanks(plans []*plan) []*scan.FileTank {
+// fileTanks describes the file tanks plans (of all, the whole config) for
+// scan.ReadFiles: their sources from the config (a setting that does not
+// parse fails the tank), and for a tank in cascade the receiving tank and
+// the outlet's height above its bottom.
+func fileTanks(all, plans []*plan) []*scan.FileTank {
 	byID := map[string]*plan{}
-	for _, p := range j.plans {
+	for _, p := range all {
 		byID[p.cfg.ID] = p
 	}
 	out := make([]*scan.FileTank, 0, len(plans))
