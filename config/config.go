@@ -14,7 +14,23 @@ type Config struct {
 	File    string // the file it was read from (the name given to Parse)
 	Sites   []Site
 	Tanks   []Tank
+	Levels  []Level
 	Outputs Outputs
+}
+
+// Level is a measured level that is not a monitored tank: a basin or sump
+// that monitored outlets discharge into (Outlet.DischargesInto), read only
+// for the head across those outlets. Its level is measured from its bottom,
+// which stands BaseElevationM above the plant datum; HeightM is its depth,
+// the range its readings are checked against.
+type Level struct {
+	ID             string
+	Site           string
+	Description    string
+	BaseElevationM float64
+	HeightM        float64
+	Sensor         Sensor
+	Source         Source
 }
 
 // Site groups tanks and may name an InfluxDB server.
@@ -127,10 +143,10 @@ type Outlet struct {
 	// KvM3h is a valve's flow coefficient from its data sheet (m^3/h of
 	// water at 1 bar across it); 0 when not given.
 	KvM3h float64
-	// DischargesInto is the id of the configured tank (or basin) that this
-	// outlet discharges into; "" for a free discharge. Its level, with the
-	// two tanks' BaseElevationM, gives the level on the far side of the
-	// outlet (model.Series.SubmergedM).
+	// DischargesInto is the id of the configured tank, or of a Level (a
+	// basin whose level is measured), that this outlet discharges into; ""
+	// for a free discharge. Its level, with the two BaseElevationM, gives
+	// the level on the far side of the outlet (model.Series.SubmergedM).
 	DischargesInto string
 }
 
@@ -310,6 +326,16 @@ func (c *Config) Tank(id string) *Tank {
 	for i := range c.Tanks {
 		if c.Tanks[i].ID == id {
 			return &c.Tanks[i]
+		}
+	}
+	return nil
+}
+
+// Level returns the level with the given id, or nil.
+func (c *Config) Level(id string) *Level {
+	for i := range c.Levels {
+		if c.Levels[i].ID == id {
+			return &c.Levels[i]
 		}
 	}
 	return nil

@@ -63,8 +63,8 @@
 //	    elevation                above the vessel bottom, below the vessel height, or "unknown"
 //	                             (ElevationKnown false: the datum is estimated per drain)
 //	    design_cd                optional, in (0, 1]
-//	    discharges_into          optional: id of the tank (same site, read the same way)
-//	                             the outlet discharges into; its level above this outlet
+//	    discharges_into          optional: id of the tank or level (same site, read the same
+//	                             way) the outlet discharges into; its level above this outlet
 //	                             makes the outlet submerged (model.Series.SubmergedM)
 //	  sensor
 //	    kind                     depth | pressure
@@ -108,6 +108,13 @@
 //	    settle                   (5 min)
 //	    gap_limit                (5 min)
 //	    feed_silent_limit        (4 h) a feed without samples this long gets one feed notice, and one when it returns
+//	levels[]                     optional: measured levels that are not monitored tanks (a
+//	                             basin an outlet discharges into), read only for that head
+//	  id                         unique among tanks and levels
+//	  site, description          as for tanks
+//	  base_elevation             (0 m) the basin's bottom (its zero level) above the plant datum
+//	  height                     the basin's depth; readings beyond it by the tanks' margin are refused
+//	  sensor, source             as for tanks (no inflow meter)
 //	outputs                      optional
 //	  directory                  (out)
 //	  state_file                 (<directory>/state.db) bbolt

@@ -116,6 +116,23 @@ func (d *decoder) config(root *yaml.Node) *Config {
 		seenTank[t.ID] = i
 		c.Tanks = append(c.Tanks, t)
 	}
+	for i, n := range top.list("levels") {
+		path := fmt.Sprintf("levels[%d]", i)
+		if n == nil || n.Kind != yaml.MappingNode {
+			d.add(path, n, "want a mapping of keys")
+			continue
+		}
+		l := d.level(n, path, c)
+		if j, dup := seenTank[l.ID]; dup && l.ID != "" {
+			d.add(path+".id", n, "%q is already defined by tanks[%d]", l.ID, j)
+		}
+		for j, o := range c.Levels {
+			if o.ID == l.ID && l.ID != "" {
+				d.add(path+".id", n, "level %q is already defined by levels[%d]", l.ID, j)
+			}
+		}
+		c.Levels = append(c.Levels, l)
+	}
 	d.links(c)
 	c.Outputs = d.outputs(top.get("outputs"), "outputs")
 	top.done()
@@ -140,22 +157,24 @@ func (d *decoder) links(c *Config) {
 		}
 		path := fmt.Sprintf("tanks[%d].outlet.discharges_into", i)
 		n := d.linkNodes[i]
-		var r *Tank
-		for j := range c.Tanks {
-			if c.Tanks[j].ID == into {
-				r = &c.Tanks[j]
-			}
+		what, site, format, found := "tank", "", "", true
+		if r := c.Tank(into); r != nil {
+			site, format = r.Site, r.Source.Format
+		} else if l := c.Level(into); l != nil {
+			what, site, format = "level", l.Site, l.Source.Format
+		} else {
+			found = false
 		}
 		switch {
 		case into == t.ID:
 			d.add(path, n, "a tank cannot discharge into itself")
-		case r == nil:
-			d.add(path, n, "no tank %q in tanks (a basin that receives the outlet is configured as a tank too)", into)
-		case r.Site != t.Site:
-			d.add(path, n, "tank %q is on site %q, this tank on %q", into, r.Site, t.Site)
-		case (t.Source.Format == "influx") != (r.Source.Format == "influx"):
-			d.add(path, n, "tank %q is read from %s, this tank from %s: linked tanks are both read from files or both from the site's InfluxDB",
-				into, sourceKind(r.Source.Format), sourceKind(t.Source.Format))
+		case !found:
+			d.add(path, n, "no tank or level %q (a basin whose level is measured goes in levels)", into)
+		case site != t.Site:
+			d.add(path, n, "%s %q is on site %q, this tank on %q", what, into, site, t.Site)
+		case (t.Source.Format == "influx") != (format == "influx"):
+			d.add(path, n, "%s %q is read from %s, this tank from %s: linked vessels are both read from files or both from the site's InfluxDB",
+				what, into, sourceKind(format), sourceKind(t.Source.Format))
 		}
 	}
 }
@@ -310,6 +329,42 @@ func (d *decoder) tank(n *yaml.Node, path string, c *Config) Tank {
 	}
 	f.done()
 	return t
+}
+
+// level decodes one entry of levels: a measured level that is not a
+// monitored tank (no geometry, outlet or detection; no inflow meter).
+func (d *decoder) level(n *yaml.Node, path string, c *Config) Level {
+	f := d.mapping(n, path)
+	l := Level{ID: d.id(f, "id"), Description: f.str("description", "")}
+	site, sn, _ := f.scalar("site")
+	switch {
+	case site == "" && len(c.Sites) == 1:
+		site = c.Sites[0].ID
+	case site == "" && len(c.Sites) > 1:
+		d.add(path+".site", f.at(), "required when there is more than one site")
+	case site != "" && c.Site(site) == nil:
+		d.add(path+".site", sn, "no site %q in sites", site)
+	}
+	l.Site = site
+	l.BaseElevationM = quantity(f, "base_elevation", 0, ParseLength, nil)
+	if !f.has("height") {
+		d.add(path+".height", f.at(), "required: the basin's depth, which its readings are checked against")
+	}
+	l.HeightM = quantity(f, "height", 0, ParseLength, positive)
+	l.Sensor = d.sensor(f.get("sensor"), path+".sensor", f)
+	if l.Sensor.Inflow != nil {
+		d.add(path+".sensor.inflow", f.get("sensor"), "a level read for the outlets that discharge into it has no inflow meter")
+	}
+	l.Source = d.source(f.get("source"), path+".source", f)
+	if l.Source.Format == "influx" {
+		if s := c.Site(site); s != nil && s.Influx == nil {
+			d.add(path+".source.format", n, "site %q has no influx connection", site)
+		} else if s == nil && site == "" {
+			d.add(path+".source.format", n, "influx needs a site with an influx connection")
+		}
+	}
+	f.done()
+	return l
 }
 
 // section reports a required mapping that is missing.

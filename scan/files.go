@@ -21,9 +21,11 @@ type FileSource struct {
 	// field (Tanks and callbacks are set by ReadFiles).
 	Read ingest.ReadOptions
 	Conv ingest.Conversion
-	// Into is the tank the outlet discharges into ("": none) and
-	// OutletAboveM the outlet's height above that tank's bottom, m.
+	// Into is the tank or level the outlet discharges into ("": none),
+	// IntoSrc how its files are read (its level above its bottom) and
+	// OutletAboveM the outlet's height above that bottom, m.
 	Into         string
+	IntoSrc      *FileSource
 	OutletAboveM float64
 }
 
@@ -85,7 +87,7 @@ func ReadFiles(ctx context.Context, st *store.Store, log *slog.Logger, tanks []*
 		g.conv[ft.Plan.ID] = s.Conv
 		g.tanks = append(g.tanks, ft)
 	}
-	linkReceivers(ctx, tanks)
+	rep := linkReceivers(ctx, tanks)
 	// The reader parses on this goroutine while FileWorkers goroutines
 	// segment and fit: each tank is fed by one worker, its chunks in order,
 	// so every run sees exactly the sequence it would see alone.
@@ -102,7 +104,6 @@ func ReadFiles(ctx context.Context, st *store.Store, log *slog.Logger, tanks []*
 		}(feeds[i])
 	}
 	worker := map[string]int{}
-	var rep ingest.Report
 	var newest int64
 	var failed []error
 	for _, key := range order {
@@ -171,58 +172,66 @@ func (f *FileTank) Finish(now time.Time, complete bool) Outcome {
 }
 
 // linkReceivers gives every tank whose outlet discharges into another tank
-// that tank's level history, read once per receiving tank from its own
+// or a level that one's level history, read once per receiver from its own
 // files (level above its bottom), for the head across the outlet. A tank
 // whose receiving level cannot be read fails (nothing of it is committed).
-func linkReceivers(ctx context.Context, tanks []*FileTank) {
+// It returns the report of the levels' files (a receiving tank's are
+// reported by its own read).
+func linkReceivers(ctx context.Context, tanks []*FileTank) ingest.Report {
+	var rep ingest.Report
+	isTank := map[string]bool{}
+	for _, ft := range tanks {
+		isTank[ft.Plan.ID] = true
+	}
 	levels := map[string]*model.ReceivingLevel{}
 	failed := map[string]error{}
 	for _, ft := range tanks {
 		if ft.Run == nil || ft.Src.Into == "" {
 			continue
 		}
-		var rt *FileTank
-		for _, t := range tanks {
-			if t.Plan.ID == ft.Src.Into {
-				rt = t
-			}
-		}
-		if rt == nil {
-			ft.Out.Err = fmt.Errorf("outlet.discharges_into: no tank %q", ft.Src.Into)
+		into := ft.Src.Into
+		if ft.Src.IntoSrc == nil {
+			ft.Out.Err = fmt.Errorf("outlet.discharges_into: no tank or level %q", into)
 			continue
 		}
-		lv, err := levels[rt.Plan.ID], failed[rt.Plan.ID]
+		lv, err := levels[into], failed[into]
 		if lv == nil && err == nil {
-			if lv, err = ReadReceiver(ctx, rt); err != nil {
-				failed[rt.Plan.ID] = err
+			var r ingest.Report
+			if lv, r, err = ReadReceiver(ctx, into, *ft.Src.IntoSrc); err != nil {
+				failed[into] = err
 			} else {
-				levels[rt.Plan.ID] = lv
+				levels[into] = lv
+			}
+			if !isTank[into] {
+				rep.Merge(r)
 			}
 		}
 		if err != nil {
-			ft.Out.Err = fmt.Errorf("the level of %s, which the outlet discharges into: %w", rt.Plan.ID, err)
+			ft.Out.Err = fmt.Errorf("the level of %s, which the outlet discharges into: %w", into, err)
 			continue
 		}
 		r := *lv
 		r.OutletAboveM = ft.Src.OutletAboveM
 		ft.Run.Recv = &r
 	}
+	return rep
 }
 
-// ReadReceiver reads a receiving tank's level above its bottom from its
-// files (their problems are reported by the receiving tank's own read).
-func ReadReceiver(ctx context.Context, t *FileTank) (*model.ReceivingLevel, error) {
-	conv := t.Src.Conv
+// ReadReceiver reads the level above its bottom of id, a tank or a level
+// that outlets discharge into, from its files src, with the report of
+// those files.
+func ReadReceiver(ctx context.Context, id string, src FileSource) (*model.ReceivingLevel, ingest.Report, error) {
+	conv := src.Conv
 	conv.OutletElevM, conv.InflowToSI = 0, 0
-	conv.MinHeadM, conv.MaxHeadM = conv.MinHeadM+t.Src.Conv.OutletElevM, conv.MaxHeadM+t.Src.Conv.OutletElevM
-	opt := t.Src.Read
+	conv.MinHeadM, conv.MaxHeadM = conv.MinHeadM+src.Conv.OutletElevM, conv.MaxHeadM+src.Conv.OutletElevM
+	opt := src.Read
 	opt.InflowField = ""
-	all, _, err := ingest.ReadSeries(ctx, t.Src.Paths, t.Src.Format, opt, map[string]ingest.Conversion{t.Plan.ID: conv})
+	all, rep, err := ingest.ReadSeries(ctx, src.Paths, src.Format, opt, map[string]ingest.Conversion{id: conv})
 	if err != nil {
-		return nil, err
+		return nil, rep, err
 	}
 	r := &model.ReceivingLevel{MaxGapNs: int64(ReceiverMaxGap)}
-	if s := all[t.Plan.ID]; s != nil {
+	if s := all[id]; s != nil {
 		r.TimeNs, r.LevelM = s.TimeNs, s.HeadM
 		if n := s.Len(); n > 1 {
 			dts := make([]int64, n-1)
@@ -233,5 +242,5 @@ func ReadReceiver(ctx context.Context, t *FileTank) (*model.ReceivingLevel, erro
 			r.MaxGapNs = max(r.MaxGapNs, 4*dts[len(dts)/2])
 		}
 	}
-	return r, nil
+	return r, rep, nil
 }

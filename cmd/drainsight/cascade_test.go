@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 	"time"
@@ -157,6 +158,57 @@ func TestScanCascade(t *testing.T) {
 	}
 }
 
+// A basin that is not monitored, configured under levels, receives UP's
+// outlet: scan reads its level for the head across the outlet, UP's drains
+// come out submerged with K within 1 % of the truth and an exponent of
+// 0.5 ± 0.05 (as with LO a tank), LO itself is not analysed, and check
+// lists it as a level.
+func TestScanCascadeIntoLevel(t *testing.T) {
+	path, kU := cascadePlant(t)
+	dir := filepath.Dir(path)
+	cfg := `tanks:
+  - id: UP
+    base_elevation: 0.5 m
+    geometry: {shape: vertical_cylinder, diameter: 1.2 m, height: 2 m}
+    outlet: {diameter: 40 mm, elevation: 0 m, discharges_into: LO}
+    sensor: {kind: depth, unit: m}
+    source: {format: csv, paths: [UP.csv]}
+levels:
+  - id: LO
+    description: receiving basin
+    height: 2.5 m
+    sensor: {kind: depth, unit: m}
+    source: {format: csv, paths: [LO.csv]}
+outputs: {directory: level-out}
+`
+	lp := filepath.Join(dir, "level.yaml")
+	if err := os.WriteFile(lp, []byte(cfg), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out, _, err := runArgs(t, "check", "--config", lp, "--offline")
+	if err != nil || !strings.Contains(out, "1 tanks, 1 levels") || !regexp.MustCompile(`LO\s+level\s+0-2.5 m`).MatchString(out) || strings.Contains(out, "warning") {
+		t.Errorf("check: %v\n%s", err, out)
+	}
+	if out, stderr, err := runArgs(t, "scan", "--config", lp, "--final"); err != nil {
+		t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
+	}
+	up := 0
+	for _, e := range readJSONL(t, filepath.Join(dir, "level-out", "events.jsonl")) {
+		if e["tank"] != "UP" {
+			t.Errorf("event of %v: only UP is analysed", e["tank"])
+			continue
+		}
+		up++
+		k, n := e["k_m25_s"].(float64), e["exponent"].(float64)
+		if e["method"] != "submerged" || math.Abs(k/kU-1) > 0.01 || math.Abs(n-0.5) > 0.05 {
+			t.Errorf("UP drain at %v: method %v, K/K_true %.4f, exponent %.3f; want submerged, within 1 %%, 0.5 ± 0.05", e["start"], e["method"], k/kU, n)
+		}
+	}
+	if up < 5 {
+		t.Errorf("%d drains of UP written, want the 6 simulated (the first may fall in the warm-up)", up)
+	}
+}
+
 // check segments a tank in cascade on the head across its outlet, as scan
 // does: UP's drains into the filling LO are fitted, so no setting is said
 // to reject them all (segmented on its own head they look like drains with
@@ -188,7 +240,7 @@ func TestConfigLinks(t *testing.T) {
 		name, yaml, want string
 	}{
 		{"self", "tanks:\n" + tank("A", "A", "csv"), "cannot discharge into itself"},
-		{"unknown", "tanks:\n" + tank("A", "B", "csv"), `no tank "B"`},
+		{"unknown", "tanks:\n" + tank("A", "B", "csv"), `no tank or level "B"`},
 		{"files into InfluxDB", site + "tanks:\n" + tank("A", "B", "csv") + tank("B", "", "influx"), "both read from files or both from the site's InfluxDB"},
 		{"InfluxDB into InfluxDB", site + "tanks:\n" + tank("A", "B", "influx") + tank("B", "", "influx"), ""},
 	}
@@ -340,5 +392,44 @@ outputs: {directory: out}
 	}
 	if bad := sameK(fk, dk, 1e-9); len(bad) > 0 {
 		t.Errorf("K differs between files and InfluxDB: %v", bad)
+	}
+	// The receiving tank configured as a level (a basin read only for the
+	// head across the outlet) and pulled in the same windows: CASC-UP's
+	// drains and K are those of the files, and CASC-LO is not analysed.
+	lv := t.TempDir()
+	lvCfg := fmt.Sprintf("sites:\n  - id: cascade-yard\n    influx:\n      url: %s\n      bucket: %q\n      token_env: DRAINSIGHT_INFLUX_TOKEN\n      query_window: 6 h\n      settle_delay: 0 s\n", url, bucket) +
+		fmt.Sprintf(`tanks:
+  - id: CASC-UP
+    base_elevation: %g m
+    geometry: {shape: vertical_cylinder, diameter: 1.2 m, height: 2 m}
+    outlet: {diameter: 40 mm, elevation: 0 m, discharges_into: CASC-LO}
+    sensor: {kind: depth, unit: m}
+    source: {format: influx}
+levels:
+  - id: CASC-LO
+    height: 2.5 m
+    sensor: {kind: depth, unit: m}
+    source: {format: influx}
+outputs: {directory: out}
+`, zU)
+	path := filepath.Join(lv, "plant.yaml")
+	if err := os.WriteFile(path, []byte(lvCfg), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if out, stderr, err := runArgs(t, "scan", "--config", path, "--final", "--now", "2031-06-03T00:00:00Z"); err != nil {
+		t.Fatalf("scan with a level: %v\n%s\n%s", err, out, stderr)
+	}
+	le, lk := drainKeys(t, filepath.Join(lv, "out", "events.jsonl"))
+	var fileUp []string
+	for _, k := range fe {
+		if strings.HasPrefix(k, "CASC-UP|") {
+			fileUp = append(fileUp, k)
+		}
+	}
+	if strings.Join(le, "\n") != strings.Join(fileUp, "\n") {
+		t.Errorf("with CASC-LO a level: drains %v, want CASC-UP's from files %v", le, fileUp)
+	}
+	if bad := sameK(fk, lk, 1e-9); len(bad) > 0 {
+		t.Errorf("with CASC-LO a level: K differs from files: %v", bad)
 	}
 }

@@ -22,19 +22,14 @@ const checkSample = 14 * 24 * time.Hour
 // warning for every tank where falls were seen and every one was
 // rejected: a setting (a minimum duration or drop, say) that no drain of
 // this tank can meet. Read errors are left to scan, which reports them.
-func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
+func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan, recv map[string]*plan) {
 	var files []*plan
 	for _, p := range plans {
 		if p.cfg.Source.Format != "influx" {
 			files = append(files, p)
 		}
 	}
-	fts := fileTanks(plans, files)
-	byID := map[string]*scan.FileTank{}
-	for _, ft := range fts {
-		byID[ft.Plan.ID] = ft
-	}
-	for i, ft := range fts {
+	for i, ft := range fileTanks(recv, files) {
 		p := files[i]
 		if ft.Out.Err != nil {
 			continue
@@ -44,11 +39,10 @@ func warnRejectAll(ctx context.Context, w io.Writer, plans []*plan) {
 		// as scan does: the receiving tank's level from its own files.
 		var recv *model.ReceivingLevel
 		if src.Into != "" {
-			rt := byID[src.Into]
-			if rt == nil || rt.Out.Err != nil {
+			if src.IntoSrc == nil {
 				continue
 			}
-			lv, err := scan.ReadReceiver(ctx, rt)
+			lv, _, err := scan.ReadReceiver(ctx, src.Into, *src.IntoSrc)
 			if err != nil {
 				continue
 			}

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"path/filepath"
+	"slices"
 	"strings"
 	"text/tabwriter"
 	"time"
@@ -41,12 +42,20 @@ func runCheck(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	levels, err := buildLevels(cfg)
+	if err != nil {
+		return err
+	}
 	w := e.stdout
-	fmt.Fprintf(w, "%s: valid, %d sites, %d tanks.\n", cfg.File, len(cfg.Sites), len(cfg.Tanks))
+	fmt.Fprintf(w, "%s: valid, %d sites, %d tanks", cfg.File, len(cfg.Sites), len(cfg.Tanks))
+	if len(levels) > 0 {
+		fmt.Fprintf(w, ", %d levels", len(levels))
+	}
+	fmt.Fprintln(w, ".")
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "TANK\tSHAPE\tHEAD RANGE\tSENSOR\tSOURCE\tWOULD READ")
 	var problems []error
-	for _, p := range plans {
+	for _, p := range append(slices.Clone(plans), levels...) {
 		src := p.cfg.Source
 		read := ""
 		if src.Format == "influx" {
@@ -65,11 +74,17 @@ func runCheck(ctx context.Context, e *env, args []string) error {
 				problems = append(problems, fmt.Errorf("tank %s: source.paths %q match no file", p.cfg.ID, src.Paths))
 			}
 		}
-		fmt.Fprintf(tw, "%s\t%s\t0-%.3g m\t%s %s\t%s\t%s\n", p.cfg.ID, p.cfg.Geometry.Shape, p.Tank.DrainableHeightM(),
+		shape, head := "level", 0.0 // a level: read for the outlets that discharge into it
+		if l := cfg.Level(p.cfg.ID); l != nil {
+			head = l.HeightM
+		} else {
+			shape, head = string(p.cfg.Geometry.Shape), p.Tank.DrainableHeightM()
+		}
+		fmt.Fprintf(tw, "%s\t%s\t0-%.3g m\t%s %s\t%s\t%s\n", p.cfg.ID, shape, head,
 			p.cfg.Sensor.Kind, p.cfg.Sensor.Unit, src.Format, read)
 	}
 	tw.Flush()
-	warnRejectAll(ctx, w, plans)
+	warnRejectAll(ctx, w, plans, receivers(plans, levels))
 	if !*offline {
 		clients, err := openClients(cfg)
 		if err == nil {

@@ -124,6 +124,16 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		}
 		tanks = append(tanks, t)
 	}
+	// A level that outlets of the site discharge into (a basin that is
+	// not a monitored tank) is pulled in the same windows for the head
+	// across them, never analysed: it is in byID, not in tanks.
+	for _, t := range tanks {
+		into := t.p.cfg.Outlet.DischargesInto
+		if lp := j.recv[into]; into != "" && byID[into] == nil && lp != nil && j.cfg.Level(into) != nil {
+			byID[into] = &influxTank{p: lp, out: scan.Outcome{Tank: into}, inflowM3s: math.NaN()}
+			ids = append(ids, into)
+		}
+	}
 	windows := influx.Windows(startNs, untilNs, ix.QueryWindow)
 	// Write-back runs beside the analysis from the outbox the commits fill:
 	// a server refusing writes delays neither the pull nor the fits.
@@ -233,6 +243,11 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		wb.kick()
 		if opt.progress != nil {
 			opt.progress(wi+1, len(windows), siteID)
+		}
+	}
+	for id, t := range byID {
+		if t.run == nil && t.outOfRange > 0 && j.cfg.Level(id) != nil {
+			j.log.Warn("readings out of the level's range, not used", "level", id, "count", t.outOfRange, "first", t.firstBad)
 		}
 	}
 	outs := make([]scan.Outcome, 0, len(tanks))

@@ -23,8 +23,11 @@ import (
 
 // job is one configured plant: its plans, its state and its connections.
 type job struct {
-	cfg     *config.Config
-	plans   []*plan
+	cfg   *config.Config
+	plans []*plan
+	// recv indexes what outlets discharge into: the plans and the levels
+	// (basins read only for the head across those outlets).
+	recv    map[string]*plan
 	st      *store.Store
 	log     *slog.Logger
 	clients map[string]*influx.Client // per site id, only sites with InfluxDB
@@ -40,6 +43,10 @@ func openJob(cfg *config.Config, statePath string, log *slog.Logger) (*job, erro
 	if err != nil {
 		return nil, err
 	}
+	levels, err := buildLevels(cfg)
+	if err != nil {
+		return nil, err
+	}
 	if statePath == "" {
 		statePath = cfg.Outputs.StateFile
 	}
@@ -52,7 +59,7 @@ func openJob(cfg *config.Config, statePath string, log *slog.Logger) (*job, erro
 		closeClients(clients)
 		return nil, err
 	}
-	return &job{cfg: cfg, plans: plans, st: st, log: log, clients: clients, workers: 2,
+	return &job{cfg: cfg, plans: plans, recv: receivers(plans, levels), st: st, log: log, clients: clients, workers: 2,
 		notifiers: notifiers(cfg.Outputs.Alert, log)}, nil
 }
 
@@ -184,7 +191,7 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	if !now.IsZero() {
 		limit = now.UnixNano()
 	}
-	files := fileTanks(j.plans, filePlans)
+	files := fileTanks(j.recv, filePlans)
 	rep, newestNs := scan.ReadFiles(ctx, j.st, j.log, files, limit)
 	var newest time.Time
 	if newestNs != 0 {
@@ -226,43 +233,53 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	return res, err
 }
 
-// fileTanks describes the file tanks plans (of all, the whole config) for
-// scan.ReadFiles: their sources from the config (a setting that does not
-// parse fails the tank), and for a tank in cascade the receiving tank and
-// the outlet's height above its bottom.
-func fileTanks(all, plans []*plan) []*scan.FileTank {
-	byID := map[string]*plan{}
-	for _, p := range all {
-		byID[p.cfg.ID] = p
-	}
+// fileTanks describes the file tanks plans for scan.ReadFiles: their
+// sources from the config (a setting that does not parse fails the tank),
+// and for a tank in cascade the receiving tank or level (from recv), its
+// source and the outlet's height above its bottom.
+func fileTanks(recv map[string]*plan, plans []*plan) []*scan.FileTank {
 	out := make([]*scan.FileTank, 0, len(plans))
 	for _, p := range plans {
 		ft := &scan.FileTank{Plan: &p.Plan, Out: scan.Outcome{Tank: p.cfg.ID}}
 		out = append(out, ft)
-		src := p.cfg.Source
-		format, err := ingest.ParseFormat(src.Format)
-		if err == nil {
-			var prec ingest.Precision
-			if prec, err = ingest.ParsePrecision(src.Precision); err == nil {
-				ft.Src = scan.FileSource{Paths: src.Paths, Format: format, Conv: p.conv,
-					Read: ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field, TankTag: src.TankTag}}
-			}
-		}
-		if err != nil {
+		var err error
+		if ft.Src, err = fileSource(p); err != nil {
 			ft.Out.Err = err
 			continue
 		}
-		if p.cfg.Sensor.Inflow != nil {
-			ft.Src.Read.InflowField = p.cfg.Sensor.Inflow.Field
-		}
 		if into := p.cfg.Outlet.DischargesInto; into != "" {
 			ft.Src.Into = into
-			if rp := byID[into]; rp != nil {
+			if rp := recv[into]; rp != nil {
 				ft.Src.OutletAboveM = p.cfg.BaseElevationM + p.cfg.Outlet.ElevationM - rp.cfg.BaseElevationM
+				rs, err := fileSource(rp)
+				if err != nil {
+					ft.Out.Err = fmt.Errorf("outlet.discharges_into %s: %w", into, err)
+					continue
+				}
+				ft.Src.IntoSrc = &rs
 			}
 		}
 	}
 	return out
+}
+
+// fileSource is how a tank's (or level's) files are read.
+func fileSource(p *plan) (scan.FileSource, error) {
+	src := p.cfg.Source
+	format, err := ingest.ParseFormat(src.Format)
+	if err != nil {
+		return scan.FileSource{}, err
+	}
+	prec, err := ingest.ParsePrecision(src.Precision)
+	if err != nil {
+		return scan.FileSource{}, err
+	}
+	fs := scan.FileSource{Paths: src.Paths, Format: format, Conv: p.conv,
+		Read: ingest.ReadOptions{Precision: prec, Measurement: src.Measurement, Field: src.Field, TankTag: src.TankTag}}
+	if p.cfg.Sensor.Inflow != nil {
+		fs.Read.InflowField = p.cfg.Sensor.Inflow.Field
+	}
+	return fs, nil
 }
 
 // errTankFailures reports how many tanks failed in a pass.

@@ -63,36 +63,13 @@ func buildPlan(ct config.Tank) (*plan, error) {
 	if err := t.Validate(); err != nil {
 		return nil, err
 	}
-	s := ingest.Sensor{
-		Kind:        ingest.Depth,
-		UnitToSI:    ct.Sensor.UnitToSI,
-		ZeroOffset:  ct.Sensor.ZeroOffset,
-		DensityKgM3: ct.Sensor.DensityKgM3,
-		SpanM:       ct.Sensor.SpanM,
+	s, err := buildSensor(ct.Sensor)
+	if err != nil {
+		return nil, err
 	}
-	if ct.Sensor.Kind == config.Pressure {
-		s.Kind = ingest.Pressure
-	}
-	if c := ct.Sensor.Calibration; c != nil { // a raw transmitter signal (mA, V, counts)
-		if len(c.Points) == 0 {
-			s.Calibration, err = ingest.NewLinearCalibration(c.GainSI, c.OffsetSI)
-		} else {
-			s.Calibration, err = ingest.NewTableCalibration(c.Table())
-		}
-		if err != nil {
-			return nil, fmt.Errorf("sensor.calibration: %w", err)
-		}
-	}
-	// Readings beyond the tank by more than rangeMargin are not levels
-	// (a wrong unit or span, a transmitter fault, a corrupt value).
-	margin := max(rangeMarginM, rangeMarginShare*t.Shape.HeightM())
-	conv := ingest.Conversion{Sensor: s, OutletElevM: ct.Outlet.ElevationM,
-		MinHeadM: -ct.Outlet.ElevationM - margin, MaxHeadM: t.Shape.HeightM() - ct.Outlet.ElevationM + margin}
+	conv := rangeConversion(s, ct.Outlet.ElevationM, t.Shape.HeightM())
 	if ct.Sensor.Inflow != nil {
 		conv.InflowToSI = ct.Sensor.Inflow.ToSI
-	}
-	if err := s.Validate(); err != nil {
-		return nil, err
 	}
 	d := ct.Detection
 	return &plan{cfg: ct, conv: conv, Plan: scan.Plan{
@@ -122,6 +99,71 @@ func buildPlan(ct config.Tank) (*plan, error) {
 			SilentLimit:         d.FeedSilentLimit,
 		},
 	}}, nil
+}
+
+// buildSensor turns a sensor's settings into its conversion to level.
+func buildSensor(cs config.Sensor) (ingest.Sensor, error) {
+	s := ingest.Sensor{
+		Kind:        ingest.Depth,
+		UnitToSI:    cs.UnitToSI,
+		ZeroOffset:  cs.ZeroOffset,
+		DensityKgM3: cs.DensityKgM3,
+		SpanM:       cs.SpanM,
+	}
+	if cs.Kind == config.Pressure {
+		s.Kind = ingest.Pressure
+	}
+	if c := cs.Calibration; c != nil { // a raw transmitter signal (mA, V, counts)
+		var err error
+		if len(c.Points) == 0 {
+			s.Calibration, err = ingest.NewLinearCalibration(c.GainSI, c.OffsetSI)
+		} else {
+			s.Calibration, err = ingest.NewTableCalibration(c.Table())
+		}
+		if err != nil {
+			return s, fmt.Errorf("sensor.calibration: %w", err)
+		}
+	}
+	return s, s.Validate()
+}
+
+// rangeConversion is the conversion of a vessel's readings to head above
+// an outlet outletElevM above its bottom, refusing readings beyond the
+// vessel (0 to heightM above its bottom) by more than the range margin
+// (a wrong unit or span, a transmitter fault, a corrupt value).
+func rangeConversion(s ingest.Sensor, outletElevM, heightM float64) ingest.Conversion {
+	margin := max(rangeMarginM, rangeMarginShare*heightM)
+	return ingest.Conversion{Sensor: s, OutletElevM: outletElevM, MinHeadM: -outletElevM - margin, MaxHeadM: heightM - outletElevM + margin}
+}
+
+// buildLevels wires the config's levels (basins read only for the head
+// across the outlets that discharge into them): a plan each, with its
+// conversion to level above its bottom and nothing to analyse.
+func buildLevels(cfg *config.Config) ([]*plan, error) {
+	var out []*plan
+	for _, l := range cfg.Levels {
+		s, err := buildSensor(l.Sensor)
+		if err != nil {
+			return nil, fmt.Errorf("%s: level %s: %w", cfg.File, l.ID, err)
+		}
+		out = append(out, &plan{
+			cfg:  config.Tank{ID: l.ID, Site: l.Site, Description: l.Description, BaseElevationM: l.BaseElevationM, Sensor: l.Sensor, Source: l.Source},
+			conv: rangeConversion(s, 0, l.HeightM), Plan: scan.Plan{ID: l.ID},
+		})
+	}
+	return out, nil
+}
+
+// receivers indexes what outlets can discharge into, tanks and levels, by id.
+func receivers(plans, levels []*plan) map[string]*plan {
+	m := make(map[string]*plan, len(plans)+len(levels))
+	for _, p := range plans {
+		m[p.cfg.ID] = p
+	}
+	for _, p := range levels {
+		m[p.cfg.ID] = p
+	}
+	return m
 }
 
 func buildShape(g config.Geometry) (model.Shape, error) {
