@@ -266,6 +266,11 @@ type Outputs struct {
 	Report       ReportSettings
 	Alert        AlertSettings
 	StateFile    string // bbolt file; default Directory/state.db
+	// NewState says this is a first run: scan, backfill and serve may
+	// create a missing state file (as with --new-state). Without it a
+	// missing state file is an error, so that a state volume that did not
+	// mount never passes for a plant with no history.
+	NewState bool
 	ScanSchedule string // cron spec (5 fields or @descriptor); default "*/15 * * * *"
 	Delivery     DeliverySettings
 	HTTP         HTTPSettings

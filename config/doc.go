@@ -117,6 +117,8 @@
 //	  sensor, source             as for tanks (no inflow meter)
 //	outputs                      optional
 //	  directory                  (out)
+//	  new_state                  (false) a first run: scan, backfill and serve may create a
+//	                             missing state file (as with --new-state); otherwise it is an error
 //	  state_file                 (<directory>/state.db) bbolt
 //	  scan_schedule              ("*/15 * * * *") cron: 5 fields or a descriptor
 //	  report

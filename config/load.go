@@ -912,6 +912,7 @@ func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 	if o.StateFile == "" {
 		o.StateFile = filepath.Join(o.Directory, "state.db")
 	}
+	o.NewState = quantity(f, "new_state", false, parseBool, nil)
 	if err := checkCron(o.ScanSchedule); err != nil {
 		d.add(path+".scan_schedule", f.get("scan_schedule"), "%v", err)
 	}

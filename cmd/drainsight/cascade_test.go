@@ -137,7 +137,7 @@ outputs: {directory: out}
 func TestScanCascade(t *testing.T) {
 	path, kU := cascadePlant(t)
 	dir := filepath.Dir(path)
-	out, stderr, err := runArgs(t, "scan", "--config", path, "--final")
+	out, stderr, err := runArgs(t, "scan", "--new-state", "--config", path, "--final")
 	if err != nil {
 		t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
 	}
@@ -189,7 +189,7 @@ outputs: {directory: level-out}
 	if err != nil || !strings.Contains(out, "1 tanks, 1 levels") || !regexp.MustCompile(`LO\s+level\s+0-2.5 m`).MatchString(out) || strings.Contains(out, "warning") {
 		t.Errorf("check: %v\n%s", err, out)
 	}
-	if out, stderr, err := runArgs(t, "scan", "--config", lp, "--final"); err != nil {
+	if out, stderr, err := runArgs(t, "scan", "--new-state", "--config", lp, "--final"); err != nil {
 		t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
 	}
 	up := 0
@@ -294,7 +294,7 @@ outputs: {directory: out}
 	if err := os.WriteFile(path, []byte(cfg), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	out, _, err := runArgs(t, "scan", "--config", path)
+	out, _, err := runArgs(t, "scan", "--new-state", "--config", path)
 	if err == nil {
 		t.Fatalf("scan succeeded with the receiving tank's files missing:\n%s", out)
 	}
@@ -371,7 +371,7 @@ outputs: {directory: out}
 			t.Fatal(err)
 		}
 		// The first scan of an InfluxDB tank reads 7 days back from --now.
-		args := []string{"scan", "--config", path, "--final", "--now", "2031-06-03T00:00:00Z"}
+		args := []string{"scan", "--new-state", "--config", path, "--final", "--now", "2031-06-03T00:00:00Z"}
 		if out, stderr, err := runArgs(t, args...); err != nil {
 			t.Fatalf("scan %s: %v\n%s\n%s", dir, err, out, stderr)
 		}
@@ -416,7 +416,7 @@ outputs: {directory: out}
 	if err := os.WriteFile(path, []byte(lvCfg), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	if out, stderr, err := runArgs(t, "scan", "--config", path, "--final", "--now", "2031-06-03T00:00:00Z"); err != nil {
+	if out, stderr, err := runArgs(t, "scan", "--new-state", "--config", path, "--final", "--now", "2031-06-03T00:00:00Z"); err != nil {
 		t.Fatalf("scan with a level: %v\n%s\n%s", err, out, stderr)
 	}
 	le, lk := drainKeys(t, filepath.Join(lv, "out", "events.jsonl"))

@@ -32,6 +32,7 @@ func runBackfill(ctx context.Context, e *env, args []string) error {
 	statePath := fs.String("state", "", "state file (default: outputs.state_file of the config)")
 	reanalyse := fs.Bool("reanalyse", false, "forget the tanks' analysis state first and start again from --since")
 	verbose := fs.Bool("v", false, "debug logging")
+	newState := fs.Bool("new-state", false, newStateUsage)
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
 	}
@@ -42,7 +43,7 @@ func runBackfill(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return &usageError{"backfill: --since: " + err.Error()}
 	}
-	opt := scanOptions{sinceNs: from.UnixNano(), reanalyse: *reanalyse}
+	opt := scanOptions{sinceNs: from.UnixNano(), reanalyse: *reanalyse, newState: *newState}
 	if *until != "" {
 		to, err := parseDay(*until)
 		if err != nil {

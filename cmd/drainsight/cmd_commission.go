@@ -88,7 +88,7 @@ func runCommission(ctx context.Context, e *env, args []string) error {
 	if path == "" {
 		path = cfg.Outputs.StateFile
 	}
-	st, err := store.Open(path, 5*time.Second)
+	st, err := openStore(path, false)
 	if err != nil {
 		return err
 	}

@@ -134,7 +134,7 @@ func runDemo(ctx context.Context, e *env, args []string) error {
 	}
 	fmt.Fprintf(e.stdout, "Demo plant: %s (invented), %d tanks, %s to %s.\n\n", sim.DemoSite, len(specs),
 		demoStart.Format("2006-01-02"), end.Format("2006-01-02"))
-	opt := scanOptions{now: end}
+	opt := scanOptions{now: end, newState: true} // the demo's state is reset: a first run
 	if loader != nil {
 		opt.sinceNs = demoStart.UnixNano()
 		opt.untilNs = end.UnixNano()

@@ -116,7 +116,7 @@ replacing an outlet restarts its baseline from that time; calibrating the
 sensor restarts the sensor checks. The next scan replays the stored drains
 with the records in time order, so a record may be added after the fact.
 
-  drainsight maintenance add --config F --tank T --at TIME --action cleaned|repaired|replaced|sensor-calibrated [--note TEXT]
+  drainsight maintenance add --config F --tank T --at TIME --action cleaned|repaired|replaced|sensor-calibrated [--note TEXT] [--new-state]
   drainsight maintenance list --config F [--tank T]
   drainsight maintenance remove --config F --id N`
 
@@ -137,6 +137,7 @@ func runMaintenance(ctx context.Context, e *env, args []string) error {
 	action := fs.String("action", "", "cleaned, repaired, replaced or sensor-calibrated")
 	note := fs.String("note", "", "free text")
 	id := fs.Uint64("id", 0, "record id (remove)")
+	newState := fs.Bool("new-state", false, "add: create the state file if it does not exist (records entered before the first scan)")
 	if err := parseFlags(e, fs, rest); err != nil {
 		return err
 	}
@@ -151,7 +152,7 @@ func runMaintenance(ctx context.Context, e *env, args []string) error {
 	if path == "" {
 		path = cfg.Outputs.StateFile
 	}
-	st, err := openStore(path)
+	st, err := openStore(path, *newState && verb == "add")
 	if err != nil {
 		return err
 	}

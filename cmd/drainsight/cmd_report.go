@@ -73,7 +73,7 @@ func writeReportFiles(cfg *config.Config, statePath, dir string, now time.Time, 
 	if statePath == "" {
 		statePath = cfg.Outputs.StateFile
 	}
-	st, err := openStore(statePath)
+	st, err := openStore(statePath, false)
 	if err != nil {
 		return err
 	}

@@ -65,6 +65,10 @@ Exit status: 0 done, 1 error (a tank failed, or notifications are still
 pending), 2 bad usage, 3 with --fail-on-findings when a tank finding is active
 (a feed notice is not one).`
 
+// newStateUsage is the --new-state flag's help, shared by scan, backfill
+// and serve.
+const newStateUsage = "a first run: create the state file if it does not exist (without it, or outputs.new_state: true,\na missing state file is an error: a state volume that did not mount must not pass for a plant without history)"
+
 // runScan implements "drainsight scan".
 func runScan(ctx context.Context, e *env, args []string) error {
 	fs := newFlags(e, "scan", "scan --config FILE [--out DIR] [flags]", scanAbout)
@@ -76,6 +80,7 @@ func runScan(ctx context.Context, e *env, args []string) error {
 	failOn := fs.Bool("fail-on-findings", false, "exit with status 3 when a tank finding is active (a feed notice is not one)")
 	final := fs.Bool("final", false, "the file histories are complete: fit a drain that runs into the end of a tank's data as a partial drain and\nhold back no drain for the settle delay (automatic for a tank whose last sample is more than the settle\ndelay before --now)")
 	verbose := fs.Bool("v", false, "debug logging; lists every fall with its times and what became of it")
+	newState := fs.Bool("new-state", false, newStateUsage)
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
 	}
@@ -96,7 +101,7 @@ func runScan(ctx context.Context, e *env, args []string) error {
 		return &usageError{err.Error()}
 	}
 	cfg = sh.apply(cfg)
-	res, err := scanOnce(ctx, e, cfg, *outDir, *statePath, scanOptions{now: now, final: *final}, log)
+	res, err := scanOnce(ctx, e, cfg, *outDir, *statePath, scanOptions{now: now, final: *final, newState: *newState}, log)
 	if err != nil {
 		return err
 	}
@@ -122,7 +127,7 @@ func scanOnce(ctx context.Context, e *env, cfg *config.Config, outDir, statePath
 	if err := os.MkdirAll(outDir, 0o755); err != nil {
 		return nil, err
 	}
-	j, err := openJob(cfg, statePath, log)
+	j, err := openJob(cfg, statePath, opt.newState || cfg.Outputs.NewState, log)
 	if err != nil {
 		return nil, err
 	}

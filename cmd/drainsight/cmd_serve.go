@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"os"
 	"sync"
 	"time"
 
@@ -40,6 +41,7 @@ func runServe(ctx context.Context, e *env, args []string) error {
 	cfgPath := fs.String("config", "", "configuration file (required)")
 	shardFlag := fs.String("shard", "", shardUsage)
 	verbose := fs.Bool("v", false, "debug logging")
+	newState := fs.Bool("new-state", false, newStateUsage)
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
 	}
@@ -56,6 +58,12 @@ func runServe(ctx context.Context, e *env, args []string) error {
 		return &usageError{err.Error()}
 	}
 	cfg = sh.apply(cfg)
+	// Only the first scan may create a missing state file: one that
+	// disappears while serving is an error, never a fresh start.
+	create := *newState || cfg.Outputs.NewState
+	if _, err := os.Stat(cfg.Outputs.StateFile); errors.Is(err, os.ErrNotExist) && !create {
+		return missingState(cfg.Outputs.StateFile)
+	}
 	loc := cfg.Outputs.Report.Location
 	if loc == nil {
 		loc = time.UTC
@@ -81,7 +89,8 @@ func runServe(ctx context.Context, e *env, args []string) error {
 		start := time.Now()
 		// Evaluated at the clock, for files too: a file feed that stopped
 		// growing goes silent as an InfluxDB feed does.
-		res, err := scanOnce(ctx, e, cfg, "", "", scanOptions{now: start.UTC()}, log)
+		res, err := scanOnce(ctx, e, cfg, "", "", scanOptions{now: start.UTC(), newState: create}, log)
+		create = false
 		mon.record(res, time.Since(start), err)
 		if err != nil {
 			log.Error("scheduled scan failed", "err", err)
@@ -138,7 +147,7 @@ const stopDeadline = 30 * time.Second
 // report written (the store's job run; never written counts as missed) and
 // now.
 func reportMissed(cfg *config.Config, loc *time.Location, now time.Time) (bool, error) {
-	st, err := openStore(cfg.Outputs.StateFile)
+	st, err := openStore(cfg.Outputs.StateFile, false)
 	if err != nil {
 		return false, err
 	}

@@ -74,7 +74,7 @@ func TestCommissionCommand(t *testing.T) {
 	if out, _, err = runArgs(t, "maintenance", "list", "--config", good, "--state", state); err != nil || !strings.Contains(out, "commissioned") || !strings.Contains(out, "new outlet plate") {
 		t.Errorf("maintenance list: %v\n%s", err, out)
 	}
-	if _, stderr, err := runArgs(t, "scan", "--config", good, "--state", state); err != nil {
+	if _, stderr, err := runArgs(t, "scan", "--new-state", "--config", good, "--state", state); err != nil {
 		t.Fatalf("scan after --accept: %v\n%s", err, stderr)
 	}
 	st, err := store.Open(state, time.Second)

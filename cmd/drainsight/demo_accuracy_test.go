@@ -62,7 +62,7 @@ func TestDemoKAccuracy(t *testing.T) {
 	// Re-analysing from scratch gives the same drains again.
 	first := len(readJSONL(t, filepath.Join(dir, "events.jsonl")))
 	cfg := filepath.Join(dir, "demo.yaml")
-	if _, stderr, err := runArgs(t, "backfill", "--config", cfg, "--out", dir, "--since", "2026-01-05", "--reanalyse",
+	if _, stderr, err := runArgs(t, "backfill", "--new-state", "--config", cfg, "--out", dir, "--since", "2026-01-05", "--reanalyse",
 		"--until", end.Format(time.RFC3339)); err != nil {
 		t.Fatalf("backfill --reanalyse: %v\n%s", err, stderr)
 	}
@@ -83,7 +83,7 @@ func TestDemoKAccuracy(t *testing.T) {
 	if _, _, err := runArgs(t, "maintenance", "add", "--config", cfg, "--tank", "KV-SMP-4", "--at", at, "--action", "replaced"); err != nil {
 		t.Fatal(err)
 	}
-	if _, stderr, err := runArgs(t, "scan", "--config", cfg, "--out", dir, "--now", end.Format(time.RFC3339)); err != nil {
+	if _, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--out", dir, "--now", end.Format(time.RFC3339)); err != nil {
 		t.Fatalf("scan after maintenance: %v\n%s", err, stderr)
 	}
 	cleared := false

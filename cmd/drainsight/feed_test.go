@@ -149,7 +149,7 @@ func TestFeedNoticeOnceAndBack(t *testing.T) {
 		{9 * time.Hour, "silent", "F1 silent since " + last.Format(time.RFC3339) + " (9.0 h)", 1, 0, "ongoing"},
 	} {
 		now := last.Add(c.after)
-		out, stderr, err := runArgs(t, "scan", "--config", cfg, "--now", now.Format(time.RFC3339), "--fail-on-findings")
+		out, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--now", now.Format(time.RFC3339), "--fail-on-findings")
 		if err != nil {
 			t.Fatalf("%v after the last sample: scan: %v (a feed notice is not a tank finding)\n%s\n%s", c.after, err, out, stderr)
 		}
@@ -186,7 +186,7 @@ func TestFeedNoticeOnceAndBack(t *testing.T) {
 	cfg = feedPlant(t, dir, [][2]time.Time{{t0, stop}, {back, back.Add(2 * time.Hour)}})
 	for i := range 2 {
 		now := back.Add(2 * time.Hour)
-		out, _, err := runArgs(t, "scan", "--config", cfg, "--now", now.Format(time.RFC3339))
+		out, _, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--now", now.Format(time.RFC3339))
 		if err != nil {
 			t.Fatalf("scan after the data returned: %v\n%s", err, out)
 		}

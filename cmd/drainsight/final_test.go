@@ -92,7 +92,7 @@ func TestScanFinal(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			dir := t.TempDir()
 			cfg, truth, last := endOfDataPlant(t, dir, "")
-			out, stderr, err := runArgs(t, append([]string{"scan", "--config", cfg, "-v"}, c.args(last)...)...)
+			out, stderr, err := runArgs(t, append([]string{"scan", "--new-state", "--config", cfg, "-v"}, c.args(last)...)...)
 			if err != nil {
 				t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
 			}
@@ -120,7 +120,7 @@ func TestScanFinal(t *testing.T) {
 					t.Errorf("partial drain ends %v before the last sample, want within 30 s", d)
 				}
 				// a second pass over the same data fits nothing again
-				out, _, err := runArgs(t, append([]string{"scan", "--config", cfg}, c.args(last)...)...)
+				out, _, err := runArgs(t, append([]string{"scan", "--new-state", "--config", cfg}, c.args(last)...)...)
 				if err != nil || !strings.Contains(out, "0 drains") {
 					t.Errorf("second scan: %v\n%s", err, out)
 				}

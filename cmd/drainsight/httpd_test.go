@@ -59,7 +59,7 @@ func TestServeHTTPEndpoints(t *testing.T) {
 	}
 	e := &env{stdout: io.Discard, stderr: io.Discard}
 	start := time.Now()
-	res, err := scanOnce(ctx, e, cfg, t.TempDir(), filepath.Join(t.TempDir(), "s.db"), scanOptions{}, discardLog())
+	res, err := scanOnce(ctx, e, cfg, t.TempDir(), filepath.Join(t.TempDir(), "s.db"), scanOptions{newState: true}, discardLog())
 	mon.record(res, time.Since(start), err)
 	if err != nil {
 		t.Fatal(err)

@@ -276,7 +276,7 @@ func benchInfluxScan(b *testing.B, since, until string) {
 		}
 		f.points.Store(0)
 		stopMem := peakMem()
-		err := run(context.Background(), []string{"backfill", "--config", cfg, "--since", since, "--until", until,
+		err := run(context.Background(), []string{"backfill", "--new-state", "--config", cfg, "--since", since, "--until", until,
 			"--state", filepath.Join(run1, "state.db"), "--out", run1}, io.Discard, io.Discard)
 		h, s := stopMem()
 		heapMB, sysMB = max(heapMB, h), max(sysMB, s)

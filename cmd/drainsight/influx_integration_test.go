@@ -110,7 +110,7 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 		if err := os.WriteFile(qlCfg, []byte(ql), 0o600); err != nil {
 			t.Fatal(err)
 		}
-		if _, stderr, err := runArgs(t, "backfill", "--config", qlCfg, "--state", filepath.Join(t.TempDir(), "ql.db"), "--out", qlOut,
+		if _, stderr, err := runArgs(t, "backfill", "--new-state", "--config", qlCfg, "--state", filepath.Join(t.TempDir(), "ql.db"), "--out", qlOut,
 			"--since", "2026-01-01", "--until", "2026-02-14"); err != nil && exitCode(err) != 1 {
 			t.Fatalf("InfluxQL backfill: %v\n%s", err, stderr)
 		}
@@ -154,7 +154,7 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	state := filepath.Join(t.TempDir(), "backfill.db")
 	done := make(chan error, 1)
 	go func() {
-		_, _, err := runArgs(t, "backfill", "--config", cfg, "--state", state, "--out", t.TempDir(),
+		_, _, err := runArgs(t, "backfill", "--new-state", "--config", cfg, "--state", state, "--out", t.TempDir(),
 			"--since", "2026-01-05", "--until", "2026-02-14")
 		done <- err
 	}()
@@ -167,13 +167,13 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	err = <-done
 	for attempt := 0; err != nil && attempt < 3; attempt++ {
 		t.Logf("backfill stopped (%v); resuming", err)
-		_, _, err = runArgs(t, "backfill", "--config", cfg, "--state", state, "--out", t.TempDir(),
+		_, _, err = runArgs(t, "backfill", "--new-state", "--config", cfg, "--state", state, "--out", t.TempDir(),
 			"--since", "2026-01-05", "--until", "2026-02-14")
 	}
 	if err != nil {
 		t.Fatalf("backfill did not complete: %v", err)
 	}
-	st, err := openStore(state)
+	st, err := openStore(state, false)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -348,11 +348,11 @@ func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
 		t.Fatal(err)
 	}
 	state := filepath.Join(t.TempDir(), "s.db")
-	out, stderr, err := runArgs(t, "backfill", "--config", cfg, "--state", state, "--out", t.TempDir(), "--since", "2026-01-01")
+	out, stderr, err := runArgs(t, "backfill", "--new-state", "--config", cfg, "--state", state, "--out", t.TempDir(), "--since", "2026-01-01")
 	if err != nil {
 		t.Fatalf("backfill with writes refused failed (write-back must not fail the pass): %v\n%s", err, stderr)
 	}
-	st, err := openStore(state)
+	st, err := openStore(state, false)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -379,14 +379,14 @@ func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
 	}
 	refuse.Store(false)
 	// the next scheduled pass (retry_min 0: the failed item is due again)
-	out, stderr, err = runArgs(t, "scan", "--config", cfg, "--state", state, "--out", t.TempDir())
+	out, stderr, err = runArgs(t, "scan", "--new-state", "--config", cfg, "--state", state, "--out", t.TempDir())
 	if err != nil {
 		t.Fatalf("scan with writes accepted: %v\n%s", err, stderr)
 	}
 	if !strings.Contains(out, "Write-back to InfluxDB:") || !strings.Contains(out, " 0 pending") {
 		t.Errorf("summary after delivery does not say the queue is empty:\n%s", out)
 	}
-	st, err = openStore(state)
+	st, err = openStore(state, false)
 	if err != nil {
 		t.Fatal(err)
 	}

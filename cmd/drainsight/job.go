@@ -38,7 +38,7 @@ type job struct {
 
 // openJob loads nothing itself: it wires a loaded config into a job and
 // opens the state store (with a lock timeout) and the InfluxDB clients.
-func openJob(cfg *config.Config, statePath string, log *slog.Logger) (*job, error) {
+func openJob(cfg *config.Config, statePath string, create bool, log *slog.Logger) (*job, error) {
 	plans, err := buildPlans(cfg)
 	if err != nil {
 		return nil, err
@@ -54,7 +54,7 @@ func openJob(cfg *config.Config, statePath string, log *slog.Logger) (*job, erro
 	if err != nil {
 		return nil, err
 	}
-	st, err := openStore(statePath)
+	st, err := openStore(statePath, create)
 	if err != nil {
 		closeClients(clients)
 		return nil, err
@@ -115,6 +115,9 @@ type scanOptions struct {
 	// per tank when now was given and is past the tank's last sample by
 	// more than the settle delay.
 	final bool
+	// newState: the state file may be created when missing (a first
+	// run: --new-state or outputs.new_state).
+	newState bool
 }
 
 // scanResult is what one pass of the job gave.

@@ -83,7 +83,7 @@ func TestKilledPassesLoseNothing(t *testing.T) {
 		return cmd
 	}
 	start := time.Now()
-	if err := helper("scan", "--config", cfg, "--state", filepath.Join(t.TempDir(), "ref.db"), "--out", refOut).Run(); err != nil {
+	if err := helper("scan", "--new-state", "--config", cfg, "--state", filepath.Join(t.TempDir(), "ref.db"), "--out", refOut).Run(); err != nil {
 		t.Fatalf("reference scan: %v", err)
 	}
 	full := time.Since(start) // the kills fall anywhere in a pass this long
@@ -112,7 +112,7 @@ func TestKilledPassesLoseNothing(t *testing.T) {
 					t.Fatal(err)
 				}
 			}
-			cmd := helper("scan", "--config", cfg, "--state", state, "--out", out)
+			cmd := helper("scan", "--new-state", "--config", cfg, "--state", state, "--out", out)
 			if err := cmd.Start(); err != nil {
 				t.Fatal(err)
 			}

@@ -20,7 +20,7 @@ func TestLateHistoryEvaluatedDayByDay(t *testing.T) {
 	cfg := filepath.Join(dir, "demo.yaml")
 	// the reference: one scan of the full history in a fresh state
 	refOut := t.TempDir()
-	if _, stderr, err := runArgs(t, "scan", "--config", cfg, "--state", filepath.Join(t.TempDir(), "ref.db"), "--out", refOut, "--final"); err != nil && exitCode(err) != 1 {
+	if _, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--state", filepath.Join(t.TempDir(), "ref.db"), "--out", refOut, "--final"); err != nil && exitCode(err) != 1 {
 		t.Fatalf("reference scan: %v\n%s", err, stderr)
 	}
 	// the data path delivers nothing at first: every file holds only its
@@ -47,7 +47,7 @@ func TestLateHistoryEvaluatedDayByDay(t *testing.T) {
 		}
 	}
 	state := filepath.Join(t.TempDir(), "late.db")
-	if _, stderr, err := runArgs(t, "scan", "--config", cfg, "--state", state, "--out", t.TempDir()); err != nil && exitCode(err) != 1 {
+	if _, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--state", state, "--out", t.TempDir()); err != nil && exitCode(err) != 1 {
 		t.Fatalf("scan of empty files: %v\n%s", err, stderr)
 	}
 	for p, b := range saved {
@@ -56,7 +56,7 @@ func TestLateHistoryEvaluatedDayByDay(t *testing.T) {
 		}
 	}
 	lateOut := t.TempDir()
-	if _, stderr, err := runArgs(t, "scan", "--config", cfg, "--state", state, "--out", lateOut, "--final"); err != nil && exitCode(err) != 1 {
+	if _, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--state", state, "--out", lateOut, "--final"); err != nil && exitCode(err) != 1 {
 		t.Fatalf("scan after the history arrived: %v\n%s", err, stderr)
 	}
 	transitions := func(dir string) []string {

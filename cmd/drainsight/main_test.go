@@ -189,7 +189,7 @@ func TestDemoEndToEnd(t *testing.T) {
 	// twice, nothing is new or cleared, nothing is notified.
 	cfg := filepath.Join(dir, "demo.yaml")
 	for i := range 3 {
-		out2, stderr2, err := runArgs(t, "scan", "--config", cfg, "--out", dir, "--now", "2026-05-05T00:00:00Z")
+		out2, stderr2, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--out", dir, "--now", "2026-05-05T00:00:00Z")
 		if err != nil {
 			t.Fatalf("re-scan %d: %v\n%s\n%s", i, err, out2, stderr2)
 		}
@@ -301,7 +301,11 @@ func TestCheckAndMaintenance(t *testing.T) {
 	if err != nil || !strings.Contains(out, "1 files") {
 		t.Fatalf("check: %v\n%s", err, out)
 	}
-	out, _, err = runArgs(t, "maintenance", "add", "--config", cfg, "--tank", "T1", "--at", "2026-01-10", "--action", "cleaned", "--note", "jetted")
+	// No state file yet: refused unless this is said to be a first run.
+	if _, _, err = runArgs(t, "maintenance", "add", "--config", cfg, "--tank", "T1", "--at", "2026-01-10", "--action", "cleaned"); exitCode(err) != 1 || !strings.Contains(err.Error(), "does not exist: for a first run pass --new-state") {
+		t.Errorf("maintenance add without a state file: %v", err)
+	}
+	out, _, err = runArgs(t, "maintenance", "add", "--new-state", "--config", cfg, "--tank", "T1", "--at", "2026-01-10", "--action", "cleaned", "--note", "jetted")
 	if err != nil || !strings.Contains(out, "added maintenance record 1") {
 		t.Fatalf("maintenance add: %v %q", err, out)
 	}

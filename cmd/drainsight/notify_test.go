@@ -64,7 +64,7 @@ func TestNotificationsNeverLost(t *testing.T) {
 	}
 	state := filepath.Join(t.TempDir(), "s.db")
 	scanIt := func() (string, error) {
-		out, _, err := runArgs(t, "scan", "--config", cfg, "--state", state, "--out", t.TempDir(), "--now", "2026-01-17T12:00:00Z")
+		out, _, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--state", state, "--out", t.TempDir(), "--now", "2026-01-17T12:00:00Z")
 		return out, err
 	}
 	out, err := scanIt()
@@ -74,7 +74,7 @@ func TestNotificationsNeverLost(t *testing.T) {
 	if !strings.Contains(out, "Notifications: ") || !strings.Contains(out, " pending; failing: notify:webhook") || !strings.Contains(out, "outputs.alert.webhook_url") {
 		t.Errorf("summary does not say the notifications are pending and which setting to check:\n%s", out)
 	}
-	st, err := openStore(state)
+	st, err := openStore(state, false)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -107,7 +107,7 @@ func TestNotificationsNeverLost(t *testing.T) {
 
 	// a transition queued for a notifier the config no longer names is
 	// dropped by the next scan, not kept pending for ever
-	st, err = openStore(state)
+	st, err = openStore(state, false)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -118,7 +118,7 @@ func TestNotificationsNeverLost(t *testing.T) {
 	if _, err := scanIt(); err != nil {
 		t.Fatalf("scan with an orphan item: %v", err)
 	}
-	st, err = openStore(state)
+	st, err = openStore(state, false)
 	if err != nil {
 		t.Fatal(err)
 	}

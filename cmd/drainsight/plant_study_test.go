@@ -113,7 +113,7 @@ func TestPlantStudy(t *testing.T) {
 	if err := os.WriteFile(cfg, []byte(yaml.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	out, stderr, err := runArgs(t, "scan", "--config", cfg, "--final")
+	out, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--final")
 	if err != nil {
 		t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
 	}

@@ -95,7 +95,7 @@ func TestScanRawSignals(t *testing.T) {
 	if err := os.WriteFile(cfg, []byte(yaml.String()), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	if out, stderr, err := runArgs(t, "scan", "--config", cfg); err != nil {
+	if out, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg); err != nil {
 		t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
 	}
 	byTank := map[string][]float64{}

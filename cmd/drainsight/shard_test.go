@@ -85,7 +85,7 @@ func TestShardedScanMatchesWhole(t *testing.T) {
 	var parts []string
 	for i := range 3 {
 		out := t.TempDir()
-		if _, stderr, err := runArgs(t, "scan", "--config", cfg, "--shard", fmt.Sprintf("%d/3", i), "--state", filepath.Join(out, "s.db"), "--out", out); err != nil && exitCode(err) != 1 {
+		if _, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--shard", fmt.Sprintf("%d/3", i), "--state", filepath.Join(out, "s.db"), "--out", out); err != nil && exitCode(err) != 1 {
 			t.Fatalf("shard %d: %v\n%s", i, err, stderr)
 		}
 		k, _ := drainKeys(t, filepath.Join(out, "events.jsonl"))

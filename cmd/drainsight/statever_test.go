@@ -17,11 +17,11 @@ import (
 func TestStateVersionRebuilt(t *testing.T) {
 	dir := t.TempDir()
 	cfg, _, _ := endOfDataPlant(t, dir, "")
-	if out, stderr, err := runArgs(t, "scan", "--config", cfg, "--final"); err != nil {
+	if out, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--final"); err != nil {
 		t.Fatalf("scan: %v\n%s\n%s", err, out, stderr)
 	}
 	path := filepath.Join(dir, "state.db")
-	st, err := openStore(path)
+	st, err := openStore(path, true)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -51,14 +51,14 @@ func TestStateVersionRebuilt(t *testing.T) {
 	}
 	st.Close()
 
-	_, stderr, err := runArgs(t, "scan", "--config", cfg, "--final")
+	_, stderr, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--final")
 	if err != nil {
 		t.Fatalf("second scan: %v\n%s", err, stderr)
 	}
 	if !strings.Contains(stderr, "detector state of another layout rebuilt") {
 		t.Errorf("second scan did not report the rebuilt state; stderr:\n%s", stderr)
 	}
-	st, err = openStore(path)
+	st, err = openStore(path, true)
 	if err != nil {
 		t.Fatal(err)
 	}

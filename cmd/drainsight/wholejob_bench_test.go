@@ -92,7 +92,7 @@ func BenchmarkWholeJob(b *testing.B) {
 		for b.Loop() {
 			dir := b.TempDir()
 			cmd := exec.Command(os.Args[0], "-test.run=^TestHelperDrainsight$")
-			cmd.Env = append(os.Environ(), "DRAINSIGHT_HELPER_ARGS="+strings.Join([]string{"scan", "--config", cfg, "--state", filepath.Join(dir, "s.db"), "--out", dir}, "\n"))
+			cmd.Env = append(os.Environ(), "DRAINSIGHT_HELPER_ARGS="+strings.Join([]string{"scan", "--new-state", "--config", cfg, "--state", filepath.Join(dir, "s.db"), "--out", dir}, "\n"))
 			if out, err := cmd.CombinedOutput(); err != nil && exitCode(err) != 1 {
 				b.Fatalf("scan: %v\n%s", err, out)
 			}

@@ -1,6 +1,8 @@
 package main
 
 import (
+	"io/fs"
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -190,11 +192,26 @@ func buildShape(g config.Geometry) (model.Shape, error) {
 }
 
 // openStore opens the state file with a lock timeout, creating its directory.
-func openStore(path string) (*store.Store, error) {
+// A missing file is created only when create is set (scan, backfill and
+// serve with --new-state or outputs.new_state: a first run); otherwise it
+// is an error, so that a state volume that did not mount never passes for
+// a plant without history.
+func openStore(path string, create bool) (*store.Store, error) {
+	if !create {
+		if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
+			return nil, missingState(path)
+		}
+	}
 	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
 		return nil, err
 	}
 	return store.Open(path, 5*time.Second)
+}
+
+// missingState is the error for a state file that does not exist.
+func missingState(path string) error {
+	return fmt.Errorf("state file %s does not exist: for a first run pass --new-state (or set outputs.new_state: true); "+
+		"otherwise check that its volume is mounted, or restore a backup (drainsight state --help)", path)
 }
 
 // writeBackSink is the outbox sink of a tank's write-back: its site's
