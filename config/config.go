@@ -262,15 +262,15 @@ type Tank struct {
 
 // Outputs says where results go.
 type Outputs struct {
-	Directory    string // default "out", relative to the config file
-	Report       ReportSettings
-	Alert        AlertSettings
-	StateFile    string // bbolt file; default Directory/state.db
+	Directory string // default "out", relative to the config file
+	Report    ReportSettings
+	Alert     AlertSettings
+	StateFile string // bbolt file; default Directory/state.db
 	// NewState says this is a first run: scan, backfill and serve may
 	// create a missing state file (as with --new-state). Without it a
 	// missing state file is an error, so that a state volume that did not
 	// mount never passes for a plant with no history.
-	NewState bool
+	NewState     bool
 	ScanSchedule string // cron spec (5 fields or @descriptor); default "*/15 * * * *"
 	Delivery     DeliverySettings
 	HTTP         HTTPSettings

@@ -1,9 +1,9 @@
 package main
 
 import (
-	"io/fs"
 	"errors"
 	"fmt"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"time"
