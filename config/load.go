@@ -1,6 +1,7 @@
 package config
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"net"
@@ -25,6 +26,31 @@ func Load(path string) (*Config, error) {
 		return nil, fmt.Errorf("config: %w", err)
 	}
 	return Parse(data, path)
+}
+
+// LoadContext is Load that gives up when ctx is done: a signal stops a
+// command while its config is still being parsed (the decoder's own limits
+// bound the work; this bounds the wait). The parse left running ends on its
+// own and its result is dropped.
+func LoadContext(ctx context.Context, path string) (*Config, error) {
+	if err := ctx.Err(); err != nil {
+		return nil, fmt.Errorf("config: %s: %w", path, err)
+	}
+	type result struct {
+		c   *Config
+		err error
+	}
+	ch := make(chan result, 1)
+	go func() {
+		c, err := Load(path)
+		ch <- result{c, err}
+	}()
+	select {
+	case r := <-ch:
+		return r.c, r.err
+	case <-ctx.Done():
+		return nil, fmt.Errorf("config: %s: %w", path, ctx.Err())
+	}
 }
 
 // Parse validates configuration bytes. name is used in messages and its

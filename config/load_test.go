@@ -1,6 +1,7 @@
 package config
 
 import (
+	"context"
 	"errors"
 	"flag"
 	"fmt"
@@ -384,5 +385,24 @@ outputs:
 	t.Setenv("DRAINSIGHT_TEST_SECRET", " k3y \n")
 	if s, err := c.Outputs.Alert.Secret(); err != nil || s != "k3y" {
 		t.Errorf("secret %q, %v; want k3y", s, err)
+	}
+}
+
+// LoadContext stops waiting for a parse when its context is done (a signal
+// during a slow parse), and otherwise returns what Load returns.
+func TestLoadContext(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "plant.yaml")
+	doc := "tanks:\n  - id: A\n    geometry: {shape: sphere, diameter: 2 m}\n    outlet: {elevation: 0 m}\n    sensor: {kind: depth, unit: m}\n    source: {format: csv, paths: [a.csv]}\n"
+	if err := os.WriteFile(path, []byte(doc), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	c, err := LoadContext(context.Background(), path)
+	if err != nil || len(c.Tanks) != 1 || c.Tanks[0].ID != "A" {
+		t.Fatalf("LoadContext: %v %+v", err, c)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := LoadContext(ctx, path); !errors.Is(err, context.Canceled) || !strings.Contains(err.Error(), path) {
+		t.Errorf("cancelled: %v, want context.Canceled naming the file", err)
 	}
 }

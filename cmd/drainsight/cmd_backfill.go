@@ -53,7 +53,7 @@ func runBackfill(ctx context.Context, e *env, args []string) error {
 		opt.now = to
 	}
 	log := newLogger(e.stderr, *verbose)
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}

@@ -72,7 +72,7 @@ func runCommission(ctx context.Context, e *env, args []string) error {
 	if err != nil || !to.After(from) {
 		return &usageError{fmt.Sprintf("commission: --until %q: want a time after --since", *until)}
 	}
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}

@@ -34,7 +34,7 @@ func runCheck(ctx context.Context, e *env, args []string) error {
 	if *cfgPath == "" {
 		return &usageError{"check: --config is required"}
 	}
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}
@@ -144,7 +144,7 @@ func runMaintenance(ctx context.Context, e *env, args []string) error {
 	if *cfgPath == "" {
 		return &usageError{"maintenance: --config is required"}
 	}
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}

@@ -64,7 +64,7 @@ func runPlanTest(ctx context.Context, e *env, args []string) error {
 	if *rho >= 1 || (*rho < 0 && *rho != -1) {
 		return &usageError{fmt.Sprintf("plan-test: --rho %g: want 0 <= rho < 1", *rho)}
 	}
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}

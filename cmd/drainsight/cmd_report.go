@@ -46,7 +46,7 @@ func runReport(ctx context.Context, e *env, args []string) error {
 	if now.IsZero() {
 		now = time.Now().UTC()
 	}
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}

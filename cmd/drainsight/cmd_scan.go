@@ -92,7 +92,7 @@ func runScan(ctx context.Context, e *env, args []string) error {
 		return err
 	}
 	log := newLogger(e.stderr, *verbose)
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}

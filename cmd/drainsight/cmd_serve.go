@@ -49,7 +49,7 @@ func runServe(ctx context.Context, e *env, args []string) error {
 		return &usageError{"serve: --config is required"}
 	}
 	log := newLogger(e.stderr, *verbose)
-	cfg, err := config.Load(*cfgPath)
+	cfg, err := config.LoadContext(ctx, *cfgPath)
 	if err != nil {
 		return err
 	}

@@ -58,7 +58,7 @@ func runState(ctx context.Context, e *env, args []string) error {
 		if *cfgPath == "" {
 			return &usageError{"state: --config or --state is required"}
 		}
-		cfg, err := config.Load(*cfgPath)
+		cfg, err := config.LoadContext(ctx, *cfgPath)
 		if err != nil {
 			return err
 		}
