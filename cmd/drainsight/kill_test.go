@@ -12,6 +12,8 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"drainsight/config"
 )
 
 // TestHelperDrainsight is the program itself when the test binary is run
@@ -158,4 +160,107 @@ func TestKilledPassesLoseNothing(t *testing.T) {
 		}
 	}
 	t.Logf("%d trials, %d passes killed at random, a pass that could not write its outputs in each: %d drains and %d transitions, none lost", trials, kills, len(refD), len(refT))
+}
+
+// mountTmpfs mounts a tmpfs of size bytes on a new directory and returns
+// it (unmounted at the end of the test); it skips the test where mounting
+// is not allowed (not root, or no mount(2) in the sandbox).
+func mountTmpfs(t *testing.T, size int) string {
+	t.Helper()
+	dir := t.TempDir()
+	if err := syscall.Mount("tmpfs", dir, "tmpfs", 0, fmt.Sprintf("size=%d", size)); err != nil {
+		t.Skipf("a small tmpfs for the full-disk test cannot be mounted here (%v): needs root", err)
+	}
+	t.Cleanup(func() { syscall.Unmount(dir, syscall.MNT_DETACH) })
+	return dir
+}
+
+// A real full disk (a 48 kB tmpfs): a pass whose outputs directory fills
+// up exits 1 naming the device error, and the next pass on a disk with
+// room lists every drain and transition the undisturbed scan lists; a pass
+// whose state file's disk is full exits 1 too, and what the state file
+// already held is intact (state check calls it sound, and a later pass
+// over it with room finds the same drains).
+func TestFullDisk(t *testing.T) {
+	dir := demoPlant(t, "20")
+	cfg := filepath.Join(dir, "demo.yaml")
+	refOut := t.TempDir()
+	if _, _, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--state", filepath.Join(t.TempDir(), "ref.db"), "--out", refOut); err != nil {
+		t.Fatal(err)
+	}
+	refD, refT, _ := outputKeys(t, refOut)
+	refD, refT = uniq(refD), uniq(refT)
+
+	// The outputs directory is full.
+	state := filepath.Join(t.TempDir(), "s.db")
+	full := mountTmpfs(t, 48<<10)
+	_, _, err := runArgs(t, "scan", "--new-state", "--config", cfg, "--state", state, "--out", full)
+	if exitCode(err) != 1 || !strings.Contains(fmt.Sprint(err), "no space left on device") {
+		t.Errorf("scan into a full outputs directory: %v (exit %d), want exit 1 naming the device error", err, exitCode(err))
+	}
+	out := t.TempDir()
+	if _, _, err := runArgs(t, "scan", "--config", cfg, "--state", state, "--out", out); err != nil {
+		t.Fatalf("the next pass, with room: %v", err)
+	}
+	d, tr, _ := outputKeys(t, out)
+	if d, tr = uniq(d), uniq(tr); strings.Join(d, "\n") != strings.Join(refD, "\n") || strings.Join(tr, "\n") != strings.Join(refT, "\n") {
+		t.Errorf("after the full outputs disk: %d drains and %d transitions listed, want %d and %d\nlost: %v %v", len(d), len(tr), len(refD), len(refT), head(minus(refD, d)), minus(refT, tr))
+	}
+
+	// The state file's disk is full: half the history fits, then not the rest.
+	sdir := mountTmpfs(t, 256<<10)
+	sstate := filepath.Join(sdir, "s.db")
+	_, _, err = runArgs(t, "scan", "--new-state", "--config", cfg, "--state", sstate, "--out", t.TempDir())
+	if err == nil {
+		t.Skip("the whole history fitted in the small state disk; nothing to test")
+	}
+	if exitCode(err) != 1 || !strings.Contains(fmt.Sprint(err), "no space left on device") {
+		t.Errorf("scan with a full state disk: %v (exit %d), want exit 1 naming the device error", err, exitCode(err))
+	}
+	if out, _, err := runArgs(t, "state", "check", "--state", sstate); err != nil || !strings.Contains(out, "sound") {
+		t.Errorf("state check after the full disk: %v\n%s", err, out)
+	}
+	moved := filepath.Join(t.TempDir(), "s.db")
+	b, err := os.ReadFile(sstate)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(moved, b, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	out = t.TempDir()
+	if _, _, err := runArgs(t, "scan", "--config", cfg, "--state", moved, "--out", out); err != nil {
+		t.Fatalf("the pass after moving the state to a disk with room: %v", err)
+	}
+	st, err := openStore(moved, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	n := 0
+	for _, p := range mustPlans(t, cfg) {
+		fits, err := st.Fits(p, 0, 1<<62)
+		if err != nil {
+			t.Fatal(err)
+		}
+		n += len(fits)
+	}
+	if n != len(refD) {
+		t.Errorf("after the full state disk and a pass with room: %d fits stored, want the %d of the undisturbed scan", n, len(refD))
+	}
+	t.Logf("full outputs disk and full state disk: %d drains, %d transitions, none lost or doubled", len(refD), len(refT))
+}
+
+// mustPlans lists the tank ids of a config.
+func mustPlans(t *testing.T, cfg string) []string {
+	t.Helper()
+	c, err := config.Load(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ids []string
+	for _, tk := range c.Tanks {
+		ids = append(ids, tk.ID)
+	}
+	return ids
 }
