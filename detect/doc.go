@@ -53,6 +53,16 @@
 // baseline the test finds a change of about 6 between-drain scatters (t
 // above 5.96 with 6 dof); more test drains find less.
 //
+// Maintenance that did not work. A cleaning or repair keeps the baseline it
+// ends (State.Prior); the first BaselineDrains drains after it (from the
+// fourth) are compared with it by Welch's t, one-sided, at 0.001/8 each
+// (Bonferroni: 0.001 per maintenance record), and a K still low is a
+// restriction of subtype not_restored, open until the next maintenance
+// record, so a blocked K does not silently become the new baseline. On
+// 1000 simulated healthy tanks cleaned for nothing, none was said not
+// restored; a 35 % blockage cleaned without effect is found at the fourth
+// drain. A replacement or commissioning drops the prior baseline.
+//
 // Charts and their false-alarm rate. The budget is one false outlet or leak
 // finding per tank per Y = FalseAlarmYears (default 10, so 0.1 per
 // tank-year), split in exact thirds: with D the drains per year, each chart

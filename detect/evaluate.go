@@ -25,6 +25,9 @@ const (
 	// SubSinceTest: the baseline departs from the commissioning test that
 	// started it (see TestComparison).
 	SubSinceTest = "since_commissioning"
+	// SubNotRestored: the drains after a cleaning or repair stay below
+	// the baseline before it (see State.restoredCheck).
+	SubNotRestored = "not_restored"
 )
 
 // Finding is one active condition on a tank.
@@ -116,6 +119,9 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 		if f := s.testFinding(now, opt); f != nil {
 			out = append(out, *f)
 		}
+		if f := s.restoredFinding(now, opt); f != nil {
+			out = append(out, *f)
+		}
 		if leak != nil {
 			out = append(out, *leak)
 		}
@@ -203,6 +209,9 @@ func (s *State) outletFindings(now time.Time, opt Options) []Finding {
 		if f := s.testFinding(now, opt); f != nil {
 			out = append(out, *f)
 		}
+		if f := s.restoredFinding(now, opt); f != nil {
+			out = append(out, *f)
+		}
 	}
 	if leak != nil {
 		out = append(out, *leak)
@@ -232,6 +241,24 @@ func (s *State) testFinding(now time.Time, opt Options) *Finding {
 	}
 	f.Evidence = fmt.Sprintf("the %d baseline drains after the commissioning test of %s give K %.1f %% %s the test's %d (t = %.1f with %d dof, p = %.2g < %g): the outlet changed between the test and the baseline",
 		c.BaseN, nsTime(s.EpochNs).Format("2006-01-02"), math.Abs(f.MagnitudePct), word, c.TestN, c.T, c.DOF, c.P, commissionAlpha)
+	return &f
+}
+
+// restoredFinding reports maintenance that did not restore the outlet
+// (restoredCheck): a restriction of subtype SubNotRestored, open until the
+// next maintenance record. Nil otherwise.
+func (s *State) restoredFinding(now time.Time, opt Options) *Finding {
+	c, ok := s.restoredCheck(opt)
+	if !ok || !(c.P < restoredAlpha/float64(opt.BaselineDrains)) {
+		return nil
+	}
+	p := s.Prior
+	f := Finding{Tank: s.Tank, DetectedAt: now, Kind: KindRestriction, Subtype: SubNotRestored,
+		MagnitudePct: 100 * math.Expm1(c.BaseLnK-c.TestLnK), Statistic: "restored_t", Value: -c.T,
+		Threshold: -distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(c.DOF)}.Quantile(restoredAlpha / float64(opt.BaselineDrains)),
+		PValue:    c.P, FalseAlarmYears: opt.FalseAlarmYears, Onset: nsTime(p.AtNs)}
+	f.Evidence = fmt.Sprintf("not restored by the maintenance (%s) of %s: the %d drains since give K %.1f %% below the baseline before it (t = %.1f with %d dof, p = %.2g); inspect the outlet again",
+		p.Action, nsTime(p.AtNs).Format("2006-01-02"), c.BaseN, -f.MagnitudePct, c.T, c.DOF, c.P)
 	return &f
 }
 

@@ -40,11 +40,15 @@ type State struct {
 	// CommissionUntilNs is the end of the accepted commissioning test that
 	// started the current baseline (0 when none did): the accepted drains
 	// up to it are the test's (see TestComparison).
-	CommissionUntilNs int64   `json:"commission_until_ns,omitempty"`
-	LastFitNs         int64   `json:"last_fit_end_ns"`
-	LastIdleNs        int64   `json:"last_idle_end_ns"`
-	FitTimesNs        []int64 `json:"fit_times_ns"`  // recent accepted drain ends, for the drain frequency
-	IdleTimesNs       []int64 `json:"idle_times_ns"` // recent idle ends, for the idle frequency
+	CommissionUntilNs int64 `json:"commission_until_ns,omitempty"`
+	// Prior is the outlet baseline before the last cleaning or repair
+	// (nil after a replacement, a commissioning or when none was set):
+	// the drains after it are compared with it (restoredCheck).
+	Prior       *PriorBaseline `json:"prior,omitempty"`
+	LastFitNs   int64          `json:"last_fit_end_ns"`
+	LastIdleNs  int64          `json:"last_idle_end_ns"`
+	FitTimesNs  []int64        `json:"fit_times_ns"`  // recent accepted drain ends, for the drain frequency
+	IdleTimesNs []int64        `json:"idle_times_ns"` // recent idle ends, for the idle frequency
 
 	Ref   Reference `json:"ref"`
 	Learn []Point   `json:"learn"` // the reference set (baseline and learned drains)
@@ -597,9 +601,91 @@ func (s *State) Commission(from, until time.Time) error {
 	return nil
 }
 
+// PriorBaseline is what a cleaning or repair left of the baseline before
+// it: the reference ln K, its between-drain variance S2 (floored at
+// MinScatter^2) from N drains, and the maintenance's time and action.
+type PriorBaseline struct {
+	LnK    float64 `json:"ln_k"`
+	S2     float64 `json:"s2"`
+	N      int     `json:"n"`
+	AtNs   int64   `json:"at_ns"`
+	Action string  `json:"action"`
+	// Exponent and HRefM: the prior reference compared K at this
+	// exponent and head (Reference.Exponent); later drains are restated
+	// the same way before the comparison. 0: K as fitted.
+	Exponent float64 `json:"exponent,omitempty"`
+	HRefM    float64 `json:"h_ref_m,omitempty"`
+}
+
+// restoredAlpha is the false-alarm probability of the check that a
+// cleaning or repair restored the outlet, per maintenance record: it is
+// re-made as each of the first BaselineDrains drains after it arrives, at
+// restoredAlpha/BaselineDrains each (Bonferroni).
+const restoredAlpha = 0.001
+
+// restoredCheck compares the first BaselineDrains drains after a cleaning
+// or repair (at least 3) with the baseline before it (Prior), one-sided
+// for a K still low: Welch's t (Welch 1947, "The generalization of
+// 'Student's' problem when several different population variances are
+// involved", Biometrika 34),
+//
+//	t = (mean_a - LnK_b) / sqrt(s_a^2/n_a + S2_b/N_b),
+//
+// s_a floored at MinScatter, with the Welch-Satterthwaite degrees of
+// freedom, p = F_t(t). In the returned comparison TestLnK is the prior
+// ln K and BaseLnK the mean after the maintenance.
+func (s *State) restoredCheck(opt Options) (TestComparison, bool) {
+	p := s.Prior
+	if p == nil || p.N < 2 {
+		return TestComparison{}, false
+	}
+	opt = opt.withDefaults()
+	var x []float64
+	for _, pt := range s.Learn {
+		if len(x) == opt.BaselineDrains {
+			break
+		}
+		lnk := pt.LnK // the square-root K as fitted (restated below when the prior was)
+		if pt.KRaw > 0 {
+			lnk = math.Log(pt.KRaw)
+		}
+		if p.Exponent != 0 && pt.KdN != 0 && pt.KRaw > 0 {
+			if k := model.KAtReference(model.Fit{KM25s: pt.KRaw, KPerExponent: pt.KdN}, p.Exponent, p.HRefM); k > 0 && !math.IsInf(k, 0) {
+				lnk = math.Log(k)
+			}
+		}
+		x = append(x, lnk)
+	}
+	n := len(x)
+	if n < 3 {
+		return TestComparison{}, false
+	}
+	m := stat.Mean(x, nil)
+	va := math.Max(stat.Variance(x, nil), opt.MinScatter*opt.MinScatter) / float64(n)
+	vb := p.S2 / float64(p.N)
+	t := (m - p.LnK) / math.Sqrt(va+vb)
+	dof := (va + vb) * (va + vb) / (va*va/float64(n-1) + vb*vb/float64(p.N-1))
+	nu := max(1, int(dof))
+	pv := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(nu)}.CDF(t)
+	return TestComparison{TestN: p.N, BaseN: n, TestLnK: p.LnK, BaseLnK: m, T: t, DOF: nu, P: pv}, true
+}
+
 // restartBaseline forgets the outlet baseline and the idle leak statistics
-// at ns: drains before it are ignored from now on.
+// at ns: drains before it are ignored from now on. A cleaning or repair
+// keeps the baseline it ends as Prior (or the one before, when no baseline
+// formed in between); a replacement or commissioning drops it (a new
+// outlet may well pass differently).
 func (s *State) restartBaseline(ns int64, action string) {
+	switch {
+	case action != "cleaned" && action != "repaired":
+		s.Prior = nil
+	case s.Ref.Set && s.Ref.N >= 2:
+		s.Prior = &PriorBaseline{LnK: s.Ref.LnK, S2: math.Max(s.Ref.M2/float64(s.Ref.DegreesOF), s.minScatter2), N: s.Ref.N,
+			Exponent: s.Ref.Exponent, HRefM: s.Ref.HRefM}
+	}
+	if s.Prior != nil {
+		s.Prior.AtNs, s.Prior.Action = ns, action
+	}
 	s.EpochNs = ns
 	s.LastAction = action
 	s.CommissionUntilNs = 0
