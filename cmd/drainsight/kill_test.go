@@ -25,6 +25,17 @@ func TestHelperDrainsight(t *testing.T) {
 		t.Skip("the program, when run by TestKilledPassesLoseNothing")
 	}
 	err := run(context.Background(), strings.Split(args, "\n"), os.Stdout, os.Stderr)
+	if path := os.Getenv("DRAINSIGHT_HELPER_HWM"); path != "" {
+		// The peak resident set of this process image (VmHWM: reset by
+		// exec, where getrusage's maxrss keeps the parent's from the fork).
+		if b, rerr := os.ReadFile("/proc/self/status"); rerr == nil {
+			for _, l := range strings.Split(string(b), "\n") {
+				if strings.HasPrefix(l, "VmHWM:") {
+					os.WriteFile(path, []byte(strings.TrimSpace(strings.TrimSuffix(strings.TrimPrefix(l, "VmHWM:"), "kB"))), 0o600)
+				}
+			}
+		}
+	}
 	os.Exit(exitCode(err))
 }
 

@@ -6,24 +6,28 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
 	"strings"
-	"syscall"
 	"testing"
 )
 
 // peakRSS runs the program as its own process (TestHelperDrainsight) and
-// returns its peak resident set (getrusage ru_maxrss, kB on Linux) and its
-// error.
+// returns its peak resident set (VmHWM from /proc, kB) and its error.
 func peakRSS(t *testing.T, args ...string) (int64, error) {
 	t.Helper()
+	hwm := filepath.Join(t.TempDir(), "hwm")
 	cmd := exec.Command(os.Args[0], "-test.run=^TestHelperDrainsight$")
-	cmd.Env = append(os.Environ(), "DRAINSIGHT_HELPER_ARGS="+strings.Join(args, "\n"))
+	cmd.Env = append(os.Environ(), "DRAINSIGHT_HELPER_ARGS="+strings.Join(args, "\n"), "DRAINSIGHT_HELPER_HWM="+hwm)
 	err := cmd.Run()
-	ru, ok := cmd.ProcessState.SysUsage().(*syscall.Rusage)
-	if !ok {
-		t.Skip("no rusage on this system")
+	b, rerr := os.ReadFile(hwm)
+	if rerr != nil {
+		t.Skipf("no peak resident set from /proc on this system: %v", rerr)
 	}
-	return ru.Maxrss, err
+	kb, perr := strconv.ParseInt(string(b), 10, 64)
+	if perr != nil {
+		t.Fatalf("VmHWM %q: %v", b, perr)
+	}
+	return kb, err
 }
 
 // Bad input keeps memory flat: a file of 1 M readings of 1 M distinct
