@@ -96,6 +96,7 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event
 		}
 	}
 	var out []store.OutboxItem
+	var hist []store.Transition
 	horizon := nt.Horizon
 	if horizon <= 0 {
 		horizon = DefaultNotifyHorizon
@@ -105,6 +106,12 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event
 		if err != nil {
 			return nil, err
 		}
+		// Every transition is kept for the tank's history (export).
+		hd, err := EncodeGob(e)
+		if err != nil {
+			return nil, err
+		}
+		hist = append(hist, store.Transition{Tank: e.Finding.Tank, AtNs: e.At.UnixNano(), ID: e.ID(), Data: hd})
 		item := func(sink string) store.OutboxItem {
 			return store.OutboxItem{ID: sink + "|" + e.ID(), Sink: sink, Kind: OutboxAlert, Data: data, QueuedNs: time.Now().UnixNano()}
 		}
@@ -118,7 +125,7 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event
 			out = append(out, item(sink))
 		}
 	}
-	if err := st.UpdateAlerts(put, del, out...); err != nil {
+	if err := st.UpdateAlerts(put, del, hist, out...); err != nil {
 		return nil, err
 	}
 	return evs, nil

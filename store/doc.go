@@ -21,6 +21,7 @@
 //	maintenance              key be(id)     -> Maintenance
 //	alerts                   tank\x00kind\x00subtype -> opaque bytes
 //	runs                     job name       -> JobRun
+//	transitions              tank\x00be(AtNs)id -> opaque bytes (alert transitions, kept for export)
 //
 // Non-finite floats (model.Fit.Cd and EmptyHeadM are NaN when unknown) are
 // stored as the JSON strings "NaN", "+Inf" and "-Inf", which plain

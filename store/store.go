@@ -37,6 +37,7 @@ var (
 	bucketMaintenance = []byte("maintenance")
 	bucketAlerts      = []byte("alerts")
 	bucketRuns        = []byte("runs")
+	bucketTransitions = []byte("transitions")
 
 	keyCheckpoint = []byte("checkpoint")
 	keyDetector   = []byte("detector")
@@ -69,7 +70,7 @@ func Open(path string, timeout time.Duration) (*Store, error) {
 		return nil, fmt.Errorf("store: open %s: %w", path, err)
 	}
 	err = db.Update(func(tx *bolt.Tx) error {
-		for _, b := range [][]byte{bucketTanks, bucketMaintenance, bucketAlerts, bucketRuns} {
+		for _, b := range [][]byte{bucketTanks, bucketMaintenance, bucketAlerts, bucketRuns, bucketTransitions} {
 			if _, err := tx.CreateBucketIfNotExists(b); err != nil {
 				return err
 			}
@@ -626,13 +627,68 @@ type AlertRecord struct {
 	Data []byte
 }
 
-// UpdateAlerts stores recs, deletes del and queues out (the notifications of
-// the transitions recs record) in one transaction. Deleting a key that does
+// Transition is one alert transition kept for the tank's history (what
+// `drainsight export` lists): the tank, the time, its stable id (the same
+// transition stored twice is kept once) and the caller's encoding of it.
+type Transition struct {
+	Tank string
+	AtNs int64
+	ID   string
+	Data []byte
+}
+
+func (h Transition) key() []byte {
+	k := append([]byte(h.Tank), 0)
+	k = binary.BigEndian.AppendUint64(k, uint64(h.AtNs))
+	return append(k, h.ID...)
+}
+
+// Transitions lists the stored transitions of tank ("" for every tank)
+// with AtNs in [fromNs, toNs), by tank, then time.
+func (s *Store) Transitions(tank string, fromNs, toNs int64) ([]Transition, error) {
+	var out []Transition
+	err := s.view(func(tx *bolt.Tx) error {
+		b := tx.Bucket(bucketTransitions)
+		if b == nil {
+			return nil // a file written before transitions were kept
+		}
+		return b.ForEach(func(k, v []byte) error {
+			z := bytes.IndexByte(k, 0)
+			if z < 0 || len(k) < z+9 {
+				return fmt.Errorf("%w: transition key %q", ErrDamaged, k)
+			}
+			h := Transition{Tank: string(k[:z]), AtNs: int64(binary.BigEndian.Uint64(k[z+1 : z+9])), ID: string(k[z+9:])}
+			if tank != "" && h.Tank != tank || h.AtNs < fromNs || h.AtNs >= toNs {
+				return nil
+			}
+			data, err := unseal(v, func() string { return fmt.Sprintf("transition %q", h.ID) })
+			if err != nil {
+				return err
+			}
+			h.Data = data
+			out = append(out, h)
+			return nil
+		})
+	})
+	if err != nil {
+		return nil, fmt.Errorf("store: transitions of tank %q: %w", tank, err)
+	}
+	return out, nil
+}
+
+// UpdateAlerts stores recs, deletes del, keeps the transitions hist and
+// queues out (the notifications of those transitions) in one transaction. Deleting a key that does
 // not exist is not an error.
-func (s *Store) UpdateAlerts(recs []AlertRecord, del []AlertKey, out ...OutboxItem) error {
+func (s *Store) UpdateAlerts(recs []AlertRecord, del []AlertKey, hist []Transition, out ...OutboxItem) error {
 	err := s.update(func(tx *bolt.Tx) error {
 		if err := putOutbox(tx, out); err != nil {
 			return err
+		}
+		tb := tx.Bucket(bucketTransitions)
+		for _, h := range hist {
+			if err := put(tb, h.key(), h.Data); err != nil {
+				return err
+			}
 		}
 		b := tx.Bucket(bucketAlerts)
 		for _, r := range recs {

@@ -421,7 +421,7 @@ func TestAlertsAndRuns(t *testing.T) {
 		{Key: AlertKey{"T", "tank_leak", "shell"}, Data: []byte("b")},
 		{Key: AlertKey{"T", "restriction", ""}, Data: []byte("c")},
 	}
-	if err := s.UpdateAlerts(put, nil); err != nil {
+	if err := s.UpdateAlerts(put, nil, nil); err != nil {
 		t.Fatal(err)
 	}
 	got, err := s.Alerts("T")
@@ -432,7 +432,7 @@ func TestAlertsAndRuns(t *testing.T) {
 	if !reflect.DeepEqual(got, want) {
 		t.Errorf("Alerts(T): got %+v, want %+v", got, want)
 	}
-	if err := s.UpdateAlerts(nil, []AlertKey{{"T", "restriction", ""}}); err != nil {
+	if err := s.UpdateAlerts(nil, []AlertKey{{"T", "restriction", ""}}, nil); err != nil {
 		t.Fatal(err)
 	}
 	if _, ok, _ := s.Alert(AlertKey{"T", "restriction", ""}); ok {

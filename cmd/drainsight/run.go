@@ -55,6 +55,7 @@ Commands:
   state         check the state file for damage, or back it up
   plan-test     plan a commissioning drain test that pins K to a precision
   commission    judge a commissioning drain test against the outlet
+  export        write a tank's stored fits or finding transitions (CSV or JSON lines)
   study         run the accuracy or detection study and print its table
   help          show this text, or "help <command>"
 
@@ -86,6 +87,7 @@ func commands() []command {
 		{"state", "check the state file for damage, or back it up", runState},
 		{"plan-test", "plan a commissioning drain test that pins K to a precision", runPlanTest},
 		{"commission", "judge a commissioning drain test against the outlet", runCommission},
+		{"export", "write a tank's stored fits or finding transitions as CSV or JSON lines", runExport},
 		{"study", "run the accuracy or detection study", runStudy},
 	}
 }
