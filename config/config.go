@@ -57,9 +57,12 @@ type Influx struct {
 	Timeout             time.Duration // default 30 s: per query or write
 	FitsMeasurement     string        // default "outlet_fit": write-back of drain fits
 	FindingsMeasurement string        // default "outlet_finding": write-back of findings
-	SettleDelay         time.Duration // default 5 min: data younger than this is not read yet
-	Overlap             time.Duration // default 1 h: re-read before a tank's checkpoint; the command always re-reads at least 12 h
-	QueryLanguage       string        // default "flux"; "influxql" reads over the v1 /query API (InfluxDB 3, or Flux turned off)
+	// TransitionsMeasurement (default "outlet_finding_transition"):
+	// write-back of every finding transition, new and cleared.
+	TransitionsMeasurement string
+	SettleDelay            time.Duration // default 5 min: data younger than this is not read yet
+	Overlap                time.Duration // default 1 h: re-read before a tank's checkpoint; the command always re-reads at least 12 h
+	QueryLanguage          string        // default "flux"; "influxql" reads over the v1 /query API (InfluxDB 3, or Flux turned off)
 }
 
 // Token returns the token from TokenEnv or TokenFile (surrounding white space

@@ -37,6 +37,7 @@
 //	    timeout                  (30 s) per query or write
 //	    fits_measurement         (outlet_fit) write-back of fits
 //	    findings_measurement     (outlet_finding) write-back of findings
+//	    transitions_measurement  (outlet_finding_transition) write-back of every finding transition
 //	    settle_delay             (5 min) data younger than this waits for the next scan
 //	    overlap                  (1 h) extra re-read before a tank's checkpoint; at least 12 h is always re-read
 //	defaults                     optional; any tank key except id, merged into every tank:

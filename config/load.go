@@ -269,21 +269,22 @@ func (d *decoder) site(n *yaml.Node, path string) Site {
 func (d *decoder) influx(n *yaml.Node, path string) *Influx {
 	f := d.mapping(n, path)
 	in := &Influx{
-		Org:                 f.str("org", ""),
-		Bucket:              f.required("bucket"),
-		TokenEnv:            f.str("token_env", ""),
-		TokenFile:           d.resolve(f.str("token_file", "")),
-		Measurement:         f.str("measurement", "tank_level"),
-		Field:               f.str("field", "level"),
-		TankTag:             f.str("tank_tag", "tank"),
-		SiteTag:             f.str("site_tag", ""),
-		QueryWindow:         quantity(f, "query_window", 24*time.Hour, ParseDuration, positiveDuration),
-		Timeout:             quantity(f, "timeout", 30*time.Second, ParseDuration, positiveDuration),
-		FitsMeasurement:     f.str("fits_measurement", "outlet_fit"),
-		FindingsMeasurement: f.str("findings_measurement", "outlet_finding"),
-		SettleDelay:         quantity(f, "settle_delay", 5*time.Minute, ParseDuration, nonNegativeDuration),
-		Overlap:             quantity(f, "overlap", time.Hour, ParseDuration, nonNegativeDuration),
-		QueryLanguage:       f.str("query_language", "flux"),
+		Org:                    f.str("org", ""),
+		Bucket:                 f.required("bucket"),
+		TokenEnv:               f.str("token_env", ""),
+		TokenFile:              d.resolve(f.str("token_file", "")),
+		Measurement:            f.str("measurement", "tank_level"),
+		Field:                  f.str("field", "level"),
+		TankTag:                f.str("tank_tag", "tank"),
+		SiteTag:                f.str("site_tag", ""),
+		QueryWindow:            quantity(f, "query_window", 24*time.Hour, ParseDuration, positiveDuration),
+		Timeout:                quantity(f, "timeout", 30*time.Second, ParseDuration, positiveDuration),
+		FitsMeasurement:        f.str("fits_measurement", "outlet_fit"),
+		FindingsMeasurement:    f.str("findings_measurement", "outlet_finding"),
+		TransitionsMeasurement: f.str("transitions_measurement", "outlet_finding_transition"),
+		SettleDelay:            quantity(f, "settle_delay", 5*time.Minute, ParseDuration, nonNegativeDuration),
+		Overlap:                quantity(f, "overlap", time.Hour, ParseDuration, nonNegativeDuration),
+		QueryLanguage:          f.str("query_language", "flux"),
 	}
 	if l := in.QueryLanguage; l != "flux" && l != "influxql" {
 		d.add(join(path, "query_language"), f.get("query_language"), "want flux or influxql (InfluxQL over the v1 /query API, for InfluxDB 3 or a server without Flux)")

@@ -118,6 +118,9 @@ func UpdateAlerts(st *store.Store, outcomes []Outcome, nt Notify) ([]alert.Event
 		if nt.FileSink != "" {
 			out = append(out, item(nt.FileSink)) // every transition, history included
 		}
+		if wb := nt.WriteBack[e.Finding.Tank]; wb != "" {
+			out = append(out, item(wb)) // the tank's history in its InfluxDB
+		}
 		if e.At.Before(nt.Now.Add(-horizon)) && !(e.Status == alert.StatusCleared && reset[e.Finding.Tank]) {
 			continue // older history: recorded in findings.jsonl, not sent
 		}
@@ -147,6 +150,9 @@ type Notify struct {
 	Horizon time.Duration
 	// Now is the pass's evaluation time (the horizon's reference).
 	Now time.Time
+	// WriteBack maps a tank to its write-back sink (its site's InfluxDB):
+	// every transition of the tank, history included, is queued there too.
+	WriteBack map[string]string
 }
 
 // DefaultNotifyHorizon is how old a transition may be and still be sent.

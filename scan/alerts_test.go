@@ -1,6 +1,7 @@
 package scan_test
 
 import (
+	"context"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -126,7 +127,7 @@ func TestUpdateAlertsQueuesNotifications(t *testing.T) {
 	day := func(n int) time.Time { return d0.Add(time.Duration(n) * 24 * time.Hour) }
 	block := detect.Finding{Tank: "S4", Kind: detect.KindRestriction}
 	old := detect.Finding{Tank: "S5", Kind: detect.KindTankLeak}
-	nt := scan.Notify{Sinks: []string{"notify:a", "notify:b"}, Now: day(3)}
+	nt := scan.Notify{Sinks: []string{"notify:a", "notify:b"}, Now: day(3), WriteBack: map[string]string{"S4": "influx:w"}}
 	// S4: new on day 1 (history, 2 days old: not told) and still there on
 	// day 3; S5: new on day 3 (told)
 	_, err = scan.UpdateAlerts(st, []scan.Outcome{
@@ -142,6 +143,20 @@ func TestUpdateAlertsQueuesNotifications(t *testing.T) {
 	}
 	if qb, _ := st.Pending("notify:b"); len(qb) != 1 {
 		t.Errorf("second notifier: %d queued, want 1", len(qb))
+	}
+	// S4's write-back gets its history too (the day-1 transition), and
+	// the store keeps every transition for export.
+	qw, _ := st.Pending("influx:w")
+	if len(qw) != 1 || !strings.Contains(qw[0].ID, "S4|restriction|new|2031-03-02") {
+		t.Errorf("write-back queue %v, want S4's new restriction of day 1", ids(qw))
+	}
+	sink := &fakeSink{fits: map[int64]int{}}
+	snd := &scan.Sender{Store: st}
+	if d, err := snd.Deliver(context.Background(), "influx:w", scan.WriteBackTo(sink), time.Now()); err != nil || d.Delivered != 1 || len(sink.trans) != 1 {
+		t.Errorf("write-back of the transition: %+v %v, sink got %v", d, err, sink.trans)
+	}
+	if hist, err := st.Transitions("", 0, 1<<62); err != nil || len(hist) != 2 {
+		t.Errorf("stored transitions: %d, %v; want S4's and S5's new", len(hist), err)
 	}
 	st.Delivered(q...)
 	// a cleaning of S4 recorded late: the replay from day 2 clears the

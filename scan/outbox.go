@@ -82,6 +82,9 @@ func QueueFindings(st *store.Store, sink string, det *detect.State, fs []detect.
 type Sink interface {
 	WriteFits(ctx context.Context, fits []model.Fit) error
 	WriteFindings(ctx context.Context, f FindingsAt) error
+	// WriteTransition writes one finding transition (new or cleared),
+	// stamped at its time.
+	WriteTransition(ctx context.Context, e alert.Event) error
 }
 
 // Destination sends one queued item; the Sender calls it.
@@ -89,8 +92,8 @@ type Destination interface {
 	Send(ctx context.Context, it store.OutboxItem) error
 }
 
-// WriteBackTo is the Destination of a write-back Sink (items OutboxFits
-// and OutboxFindings).
+// WriteBackTo is the Destination of a write-back Sink (items OutboxFits,
+// OutboxFindings and the OutboxAlert transitions queued for it).
 func WriteBackTo(s Sink) Destination { return writeBackDest{s} }
 
 // NotifyTo is the Destination of a notifier (items OutboxAlert, one
@@ -113,6 +116,12 @@ func (d writeBackDest) Send(ctx context.Context, it store.OutboxItem) error {
 			return fmt.Errorf("outbox item %s: %w", it.ID, err)
 		}
 		return d.s.WriteFindings(ctx, f)
+	case OutboxAlert:
+		var q QueuedEvent
+		if err := DecodeGob(it.Data, &q); err != nil {
+			return fmt.Errorf("outbox item %s: %w", it.ID, err)
+		}
+		return d.s.WriteTransition(ctx, q.Event)
 	}
 	return fmt.Errorf("outbox item %s: kind %q is not a write-back", it.ID, it.Kind)
 }

@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"drainsight/detect"
+	"drainsight/alert"
 	"drainsight/model"
 	"drainsight/scan"
 	"drainsight/store"
@@ -17,7 +18,17 @@ type fakeSink struct {
 	down     bool
 	fits     map[int64]int // writes per fit end time
 	findings int
+	trans    []string
 	calls    int
+}
+
+func (s *fakeSink) WriteTransition(_ context.Context, e alert.Event) error {
+	s.calls++
+	if s.down {
+		return errors.New("503 service unavailable")
+	}
+	s.trans = append(s.trans, e.ID())
+	return nil
 }
 
 func (s *fakeSink) WriteFits(_ context.Context, fits []model.Fit) error {

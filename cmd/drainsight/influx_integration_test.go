@@ -11,6 +11,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -96,6 +97,25 @@ func TestInfluxDemoMatchesFiles(t *testing.T) {
 	ff, df := findingKeys(t, filepath.Join(files, "findings.jsonl")), findingKeys(t, filepath.Join(db, "findings.jsonl"))
 	if strings.Join(ff, ",") != strings.Join(df, ",") {
 		t.Errorf("findings differ:\nfiles:  %v\ninflux: %v", ff, df)
+	}
+	// Every transition of findings.jsonl is in the transitions
+	// measurement too, once, at its time.
+	var wantTr []string
+	var withTr []string
+	for _, f := range readJSONL(t, filepath.Join(db, "findings.jsonl")) {
+		if f["status"] == "new" || f["status"] == "cleared" {
+			at, _ := time.Parse(time.RFC3339, f["status_at"].(string))
+			wantTr = append(wantTr, fmt.Sprintf("%s|%d", f["tank"], at.UnixNano()))
+			if !slices.Contains(withTr, f["tank"].(string)) {
+				withTr = append(withTr, f["tank"].(string))
+			}
+		}
+	}
+	sort.Strings(wantTr)
+	got := writtenField(t, url, bucket, "outlet_finding_transition", "threshold", withTr)
+	sort.Strings(got)
+	if len(wantTr) == 0 || strings.Join(got, "\n") != strings.Join(wantTr, "\n") {
+		t.Errorf("transitions in InfluxDB %v, in findings.jsonl %v", got, wantTr)
 	}
 
 	// The same server read through InfluxQL over the v1 /query API (what
@@ -403,12 +423,19 @@ func TestInfluxWriteRefusedThenDelivered(t *testing.T) {
 // for the tanks, as tank|end time.
 func writtenFits(t *testing.T, url, bucket, meas string, tanks []string) []string {
 	t.Helper()
+	return writtenField(t, url, bucket, meas, "k_m25s", tanks)
+}
+
+// writtenField lists the points of measurement meas with field for the
+// tanks, as tank|time.
+func writtenField(t *testing.T, url, bucket, meas, field string, tanks []string) []string {
+	t.Helper()
 	c, err := influx.New(influx.Conn{URL: url, Bucket: bucket, Token: os.Getenv("DRAINSIGHT_INFLUX_TOKEN")}, influx.Options{})
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer c.Close()
-	src, err := c.Source(influx.SeriesSpec{Measurement: meas, Field: "k_m25s", TankTag: "tank"})
+	src, err := c.Source(influx.SeriesSpec{Measurement: meas, Field: field, TankTag: "tank"})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -145,7 +145,7 @@ func (j *job) scanSite(ctx context.Context, siteID string, plans []*plan, now ti
 		return fail(err)
 	}
 	defer wc.Close()
-	wb := j.startWriteBack(ctx, siteID, influxSink{c: wc, site: siteID, fitsMeas: ix.FitsMeasurement, findingsMeas: ix.FindingsMeasurement})
+	wb := j.startWriteBack(ctx, siteID, siteSink(wc, siteID, ix))
 
 	// Pipeline: one goroutine pulls window after window (one query each)
 	// while the tanks of the previous window are segmented, fitted and

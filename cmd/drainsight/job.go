@@ -227,6 +227,13 @@ func (j *job) scan(ctx context.Context, opt scanOptions) (*scanResult, error) {
 	res.pass = time.Now().UnixNano()
 	evs, err := scan.UpdateAlerts(j.st, outcomes, j.notifyPlan(now, res.pass))
 	res.events = evs
+	if err == nil && len(influxTanks) > 0 {
+		// The transitions just queued for each site's InfluxDB, now
+		// rather than with the next pass's write-back.
+		fl := j.flushTransitions(ctx, influxTanks)
+		res.writeBack.Add(fl)
+		res.writeBack.Pending = fl.Pending
+	}
 	if ferr := scan.PutFeeds(j.st, outcomes); ferr != nil {
 		err = errors.Join(err, ferr)
 	}

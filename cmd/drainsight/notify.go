@@ -62,7 +62,13 @@ func (w webhookFromEnv) Notify(ctx context.Context, evs []alert.Event) error {
 // notifyPlan is where this pass's transitions are queued: the notifiers
 // and the findings file.
 func (j *job) notifyPlan(now time.Time, pass int64) scan.Notify {
-	return scan.Notify{Sinks: slices.Sorted(maps.Keys(j.notifiers)), FileSink: scan.SinkFindings, Pass: pass, Now: now}
+	wb := map[string]string{}
+	for _, p := range j.plans {
+		if s := writeBackSink(&p.cfg); s != "" {
+			wb[p.cfg.ID] = s // its transitions go to its site's InfluxDB too
+		}
+	}
+	return scan.Notify{Sinks: slices.Sorted(maps.Keys(j.notifiers)), FileSink: scan.SinkFindings, Pass: pass, Now: now, WriteBack: wb}
 }
 
 // sender drains the outbox with the configured backoff and expiry.

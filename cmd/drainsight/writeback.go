@@ -5,16 +5,44 @@ import (
 	"sync"
 	"time"
 
+	"drainsight/alert"
+	"drainsight/config"
 	"drainsight/ingest/influx"
 	"drainsight/model"
 	"drainsight/scan"
 )
 
-// influxSink writes a site's queued fits and findings to its InfluxDB.
+// influxSink writes a site's queued fits, findings and finding transitions
+// to its InfluxDB.
 type influxSink struct {
-	c                      *influx.Client
-	site                   string
-	fitsMeas, findingsMeas string
+	c                                 *influx.Client
+	site                              string
+	fitsMeas, findingsMeas, transMeas string
+}
+
+// siteSink is the write-back sink of a site's InfluxDB through client c.
+func siteSink(c *influx.Client, site string, ix *config.Influx) influxSink {
+	return influxSink{c: c, site: site, fitsMeas: ix.FitsMeasurement, findingsMeas: ix.FindingsMeasurement, transMeas: ix.TransitionsMeasurement}
+}
+
+// WriteTransition writes one finding transition to the transitions
+// measurement (tags tank, site, kind, subtype when there is one, and
+// status new or cleared; the fields of the findings measurement and the
+// transition's id), stamped at its time so that writing again overwrites.
+func (s influxSink) WriteTransition(ctx context.Context, e alert.Event) error {
+	d := e.Finding
+	tags := map[string]string{"tank": d.Tank, "site": s.site, "kind": d.Kind, "status": string(e.Status)}
+	if d.Subtype != "" {
+		tags["subtype"] = d.Subtype
+	}
+	return s.c.WritePoints(ctx, []influx.Point{{
+		Measurement: s.transMeas,
+		Tags:        tags,
+		Fields: map[string]float64{"magnitude_pct": d.MagnitudePct, "value": d.Value,
+			"threshold": d.Threshold, "p_value": d.PValue},
+		StringFields: map[string]string{"statistic": d.Statistic, "evidence": d.Evidence, "id": e.ID()},
+		TimeNs:       e.At.UnixNano(),
+	}})
 }
 
 func (s influxSink) WriteFits(ctx context.Context, fits []model.Fit) error {
@@ -103,4 +131,38 @@ func (wb *writeBack) finish() scan.Delivery {
 	wb.mu.Lock()
 	defer wb.mu.Unlock()
 	return wb.total
+}
+
+// flushTransitions runs one write-back round for the sites of plans after
+// the alert lifecycle queued their transitions. Pending is what stays
+// queued for those sites.
+func (j *job) flushTransitions(ctx context.Context, plans []*plan) scan.Delivery {
+	var total scan.Delivery
+	pending := 0
+	seen := map[string]bool{}
+	for _, p := range plans {
+		site := p.cfg.Site
+		if seen[site] {
+			continue
+		}
+		seen[site] = true
+		s, c := j.cfg.Site(site), j.clients[site]
+		if s == nil || s.Influx == nil || c == nil {
+			continue
+		}
+		wc, err := influx.New(c.Conn(), influx.Options{WriteTimeout: s.Influx.Timeout, Retry: influx.Retry{Attempts: 2}})
+		if err != nil {
+			j.log.Error("write-back of the transitions", "site", site, "err", err)
+			continue
+		}
+		d, err := j.sender().Deliver(ctx, "influx:"+site, scan.WriteBackTo(siteSink(wc, site, s.Influx)), time.Now())
+		wc.Close()
+		if err != nil {
+			j.log.Error("write-back outbox", "site", site, "err", err)
+		}
+		pending += d.Pending
+		total.Add(d)
+	}
+	total.Pending = pending
+	return total
 }
