@@ -6,8 +6,8 @@ import (
 	"testing"
 	"time"
 
-	"drainsight/detect"
 	"drainsight/alert"
+	"drainsight/detect"
 	"drainsight/model"
 	"drainsight/scan"
 	"drainsight/store"
