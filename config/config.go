@@ -37,7 +37,8 @@ type Level struct {
 type Site struct {
 	ID          string
 	Description string
-	Influx      *Influx // nil when the site has no InfluxDB
+	MailTo      []string // the site's mail recipients (default outputs.alert.mail.to)
+	Influx      *Influx  // nil when the site has no InfluxDB
 }
 
 // Influx is a site's InfluxDB connection. The token is never in the file:
@@ -321,6 +322,33 @@ type AlertSettings struct {
 	// environment variable SecretEnv or the file SecretFile, never the
 	// config. Neither set: requests are not signed.
 	SecretEnv, SecretFile string
+	// Mail, when set, sends each site's transitions of a round as one
+	// message over SMTP.
+	Mail *MailSettings
+}
+
+// MailSettings are the SMTP alert settings (outputs.alert.mail). The
+// password comes from PasswordEnv or PasswordFile, never the config.
+type MailSettings struct {
+	Host     string
+	Port     int    // default 587
+	TLS      string // starttls (default), opportunistic, implicit or none
+	CAFile   string // optional PEM file of the CAs that sign the server's certificate
+	Username string // optional: no authentication without it
+	From     string
+	To       []string // recipients of every site without its own mail_to
+	// PasswordEnv, PasswordFile: where the password is (one of them with
+	// a username).
+	PasswordEnv, PasswordFile string
+}
+
+// Password returns the SMTP password ("" without a username). It is a
+// secret: never log it.
+func (m *MailSettings) Password() (string, error) {
+	if m.Username == "" {
+		return "", nil
+	}
+	return readSecret(m.PasswordEnv, "outputs.alert.mail.password_env", m.PasswordFile, "outputs.alert.mail.password_file", false)
 }
 
 // Secret returns the webhook signing secret ("" when none is configured).

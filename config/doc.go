@@ -129,6 +129,13 @@
 //	    log                      (true)
 //	    webhook_url | webhook_url_env   optional, at most one
 //	    command[]                optional argv, run without a shell
+//	    mail                     optional: each site's transitions of a round in one message
+//	      host, from             required
+//	      port                   (587)
+//	      tls                    (starttls) starttls | opportunistic | implicit | none
+//	      ca_file                optional PEM of the CAs that sign the server's certificate
+//	      username               optional; then password_env or password_file (never the password)
+//	      to[]                   recipients of every site without its own sites[].mail_to
 //
 // Unknown and repeated keys are errors. YAML anchors, aliases and merge keys
 // (<<) work. Schedules are checked with robfig/cron's standard parser (a

@@ -258,7 +258,7 @@ func (d *decoder) mergeNodes(def, over *yaml.Node, path string, depth int) *yaml
 
 func (d *decoder) site(n *yaml.Node, path string) Site {
 	f := d.mapping(n, path)
-	s := Site{ID: d.id(f, "id"), Description: f.str("description", "")}
+	s := Site{ID: d.id(f, "id"), Description: f.str("description", ""), MailTo: f.strings("mail_to")}
 	if f.has("influx") {
 		s.Influx = d.influx(f.get("influx"), join(path, "influx"))
 	}
@@ -929,6 +929,23 @@ func (d *decoder) detection(n *yaml.Node, path string) Detection {
 	return det
 }
 
+func (d *decoder) mail(n *yaml.Node, path string) *MailSettings {
+	f := d.mapping(n, path)
+	m := &MailSettings{Host: f.required("host"), Port: quantity(f, "port", 587, parseInt, func(p int) string {
+		if p < 1 || p > 65535 {
+			return "want a TCP port, 1-65535"
+		}
+		return ""
+	}), TLS: f.oneOf("tls", "starttls", "starttls", "opportunistic", "implicit", "none"),
+		CAFile: d.resolve(f.str("ca_file", "")), Username: f.str("username", ""), From: f.required("from"), To: f.strings("to")}
+	m.PasswordEnv, m.PasswordFile = d.secretKeys(f, path, "password")
+	if m.Username != "" && m.PasswordEnv == "" && m.PasswordFile == "" {
+		d.add(path+".username", f.get("username"), "give password_env or password_file with it (the password is never in the config)")
+	}
+	f.done()
+	return m
+}
+
 func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 	f := d.mapping(n, path)
 	o := Outputs{
@@ -976,6 +993,9 @@ func (d *decoder) outputs(n *yaml.Node, path string) Outputs {
 		d.add(path+".alert.command", cn, "want a list: the program and its arguments (no shell)")
 	} else {
 		o.Alert.Command = af.strings("command")
+	}
+	if af.has("mail") {
+		o.Alert.Mail = d.mail(af.get("mail"), path+".alert.mail")
 	}
 	af.done()
 

@@ -128,6 +128,35 @@ func (d writeBackDest) Send(ctx context.Context, it store.OutboxItem) error {
 
 type notifyDest struct{ n alert.Notifier }
 
+// BatchDestination sends every due item of a round at once (a mail with
+// all the transitions in it): all are delivered, or all wait for their
+// retry.
+type BatchDestination interface {
+	Destination
+	SendAll(ctx context.Context, items []store.OutboxItem) error
+}
+
+// NotifyGroupedTo is the Destination of a notifier that tells all the
+// transitions of a round in one go (mail): one Notify call per round.
+func NotifyGroupedTo(n alert.Notifier) BatchDestination { return groupedDest{notifyDest{n}} }
+
+type groupedDest struct{ notifyDest }
+
+func (d groupedDest) SendAll(ctx context.Context, items []store.OutboxItem) error {
+	evs := make([]alert.Event, 0, len(items))
+	for _, it := range items {
+		if it.Kind != OutboxAlert {
+			return fmt.Errorf("outbox item %s: kind %q is not a notification", it.ID, it.Kind)
+		}
+		var q QueuedEvent
+		if err := DecodeGob(it.Data, &q); err != nil {
+			return fmt.Errorf("outbox item %s: %w", it.ID, err)
+		}
+		evs = append(evs, q.Event)
+	}
+	return d.n.Notify(ctx, evs)
+}
+
 func (d notifyDest) Send(ctx context.Context, it store.OutboxItem) error {
 	if it.Kind != OutboxAlert {
 		return fmt.Errorf("outbox item %s: kind %q is not a notification", it.ID, it.Kind)
@@ -226,6 +255,36 @@ func (s *Sender) Deliver(ctx context.Context, name string, to Destination, now t
 		d.Expired = len(expired)
 	}
 	left := len(items) - len(expired)
+	if b, ok := to.(BatchDestination); ok {
+		var due []store.OutboxItem
+		for _, it := range items {
+			if nowNs-it.QueuedNs <= int64(maxAge) && it.NextNs <= nowNs {
+				due = append(due, it)
+			}
+		}
+		if len(due) == 0 || ctx.Err() != nil {
+			d.Pending = left
+			return d, nil
+		}
+		if err := b.SendAll(ctx, due); err != nil {
+			if ctx.Err() == nil {
+				d.Deferred, d.LastError = len(due), err.Error()
+				s.log().Warn("delivery deferred", "sink", name, "items", len(due), "err", err)
+				for _, it := range due {
+					if derr := s.Store.Deferred(it.ID, nowNs+int64(backoff(it.Attempts+1)), err.Error()); derr != nil && !errors.Is(derr, store.ErrNotQueued) {
+						return d, derr
+					}
+				}
+			}
+			d.Pending = left
+			return d, nil
+		}
+		if err := s.Store.Delivered(due...); err != nil {
+			return d, err
+		}
+		d.Delivered, d.Pending = len(due), left-len(due)
+		return d, nil
+	}
 	for _, it := range items {
 		if nowNs-it.QueuedNs > int64(maxAge) {
 			continue

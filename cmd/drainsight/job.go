@@ -60,7 +60,7 @@ func openJob(cfg *config.Config, statePath string, create bool, log *slog.Logger
 		return nil, err
 	}
 	return &job{cfg: cfg, plans: plans, recv: receivers(plans, levels), st: st, log: log, clients: clients, workers: 2,
-		notifiers: notifiers(cfg.Outputs.Alert, log)}, nil
+		notifiers: notifiers(cfg, log)}, nil
 }
 
 // openClients opens one InfluxDB client per site that has a server; the

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"crypto/x509"
 	"fmt"
 	"log/slog"
 	"maps"
@@ -19,7 +20,8 @@ import (
 // notifiers returns the configured notifiers by outbox sink name. Each is
 // its own sink: a webhook that is down holds back neither the log nor the
 // command.
-func notifiers(a config.AlertSettings, log *slog.Logger) map[string]alert.Notifier {
+func notifiers(cfg *config.Config, log *slog.Logger) map[string]alert.Notifier {
+	a := cfg.Outputs.Alert
 	ns := map[string]alert.Notifier{}
 	if a.Log {
 		ns["notify:log"] = alert.LogNotifier{Logger: log}
@@ -33,7 +35,79 @@ func notifiers(a config.AlertSettings, log *slog.Logger) map[string]alert.Notifi
 	if len(a.Command) > 0 {
 		ns["notify:command"] = alert.CommandNotifier{Argv: a.Command}
 	}
+	if m := a.Mail; m != nil {
+		addMail(ns, cfg, m, log)
+	}
 	return ns
+}
+
+// addMail adds one mail notifier per site (sink notify:mail:<site>; one
+// for the whole plant when no sites are configured), each telling only
+// its site's tanks to the site's mail_to (or outputs.alert.mail.to).
+func addMail(ns map[string]alert.Notifier, cfg *config.Config, m *config.MailSettings, log *slog.Logger) {
+	tanks := map[string]string{}
+	desc := map[string]string{}
+	for _, t := range cfg.Tanks {
+		tanks[t.ID], desc[t.ID] = t.Site, t.Description
+	}
+	sites := cfg.Sites
+	if len(sites) == 0 {
+		sites = []config.Site{{}}
+	}
+	for _, s := range sites {
+		to := s.MailTo
+		if len(to) == 0 {
+			to = m.To
+		}
+		if len(to) == 0 {
+			log.Warn("no mail recipients for the site: set sites[].mail_to or outputs.alert.mail.to", "site", s.ID)
+			continue
+		}
+		name := s.Description
+		if name == "" {
+			name = s.ID
+		}
+		sink := "notify:mail"
+		if s.ID != "" {
+			sink += ":" + s.ID
+		}
+		ns[sink] = mailAtDelivery{settings: m, n: alert.MailNotifier{Host: m.Host, Port: m.Port, TLS: alert.MailTLS(m.TLS),
+			Username: m.Username, From: m.From, To: to, Site: s.ID, SiteName: name, Tanks: tanks, Descriptions: desc}}
+	}
+}
+
+// mailAtDelivery reads the password and the CA file at each delivery: an
+// unset variable or an unreadable file fails the delivery (the
+// transitions stay queued) with a message naming the setting.
+type mailAtDelivery struct {
+	settings *config.MailSettings
+	n        alert.MailNotifier
+}
+
+func (m mailAtDelivery) Notify(ctx context.Context, evs []alert.Event) error {
+	n := m.n
+	var err error
+	if n.Password, err = m.settings.Password(); err != nil {
+		return fmt.Errorf("alert: mail not sent: %w", err)
+	}
+	if f := m.settings.CAFile; f != "" {
+		pem, err := os.ReadFile(f)
+		if err != nil {
+			return fmt.Errorf("alert: mail not sent: outputs.alert.mail.ca_file: %w", err)
+		}
+		n.RootCAs = x509.NewCertPool()
+		if !n.RootCAs.AppendCertsFromPEM(pem) {
+			return fmt.Errorf("alert: mail not sent: outputs.alert.mail.ca_file %s holds no PEM certificate", f)
+		}
+	}
+	return n.Notify(ctx, evs)
+}
+
+// grouped reports whether a notifier tells a round's transitions in one
+// message (mail).
+func grouped(n alert.Notifier) bool {
+	_, ok := n.(mailAtDelivery)
+	return ok
 }
 
 // webhookFromEnv reads the webhook's URL (from its environment variable,
@@ -100,7 +174,11 @@ func (j *job) deliverNotifications(ctx context.Context) scan.Delivery {
 		}
 	}
 	for _, name := range slices.Sorted(maps.Keys(j.notifiers)) {
-		d, err := snd.Deliver(ctx, name, scan.NotifyTo(j.notifiers[name]), time.Now())
+		to := scan.NotifyTo(j.notifiers[name])
+		if grouped(j.notifiers[name]) {
+			to = scan.NotifyGroupedTo(j.notifiers[name])
+		}
+		d, err := snd.Deliver(ctx, name, to, time.Now())
 		if err != nil {
 			j.log.Error("notification outbox", "notifier", name, "err", err)
 		}
