@@ -47,7 +47,7 @@ type smtpSession struct {
 }
 
 func (s *smtpServer) NewSession(*smtp.Conn) (smtp.Session, error) { return &smtpSession{s: s}, nil }
-func (x *smtpSession) AuthMechanisms() []string                    { return []string{sasl.Plain} }
+func (x *smtpSession) AuthMechanisms() []string                   { return []string{sasl.Plain} }
 func (x *smtpSession) Auth(string) (sasl.Server, error) {
 	return sasl.NewPlainServer(func(_, user, pw string) error {
 		if user != x.s.user || pw != x.s.pw {
